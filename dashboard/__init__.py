@@ -1,0 +1,1 @@
+"""podwatch dashboard: the browser page that shows both poses live."""

@@ -1,0 +1,85 @@
+"""Wheel geometry -> body displacement, in the REP 103 body frame.
+
+Owns the observation model of tracking wheels: a wheel at (x_i, y_i) rolling
+along angle phi_i measures s_i = cos(phi) (dx - y dth) + sin(phi) (dy + x dth)
+(rigid-body velocity of the contact point, Lynch and Park, Modern Robotics,
+2017, ch. 13). Pure numpy: no I/O, no clocks, no state between calls.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import TYPE_CHECKING, Sequence
+
+import numpy as np
+
+if TYPE_CHECKING:
+    from receiver.profile import Profile, Wheel
+
+# Singular values below this (relative to the largest) mean the geometry
+# cannot tell the motions apart; real layouts sit far above it.
+_RANK_TOLERANCE = 1e-6
+
+
+def observation_matrix(wheels: Sequence[Wheel]) -> np.ndarray:
+    """Rows [cos phi, sin phi, x sin phi - y cos phi] mapping (dx, dy, dth) to travel."""
+    rows = []
+    for w in wheels:
+        phi = math.radians(w.angle)
+        c, s = math.cos(phi), math.sin(phi)
+        rows.append([c, s, w.x * s - w.y * c])
+    return np.asarray(rows, dtype=float)
+
+
+def _full_rank(matrix: np.ndarray) -> bool:
+    sv = np.linalg.svd(matrix, compute_uv=False)
+    return bool(sv.size == matrix.shape[1] and sv[-1] > _RANK_TOLERANCE * max(sv[0], 1e-12))
+
+
+def observable(wheels: Sequence[Wheel], with_imu: bool = False) -> bool:
+    """True when the wheels (and the IMU, when used) determine dx, dy and dth."""
+    a = observation_matrix(wheels)
+    return _full_rank(a[:, :2] if with_imu else a)
+
+
+class Kinematics:
+    """Precomputed solve for one profile.
+
+    Arrays are shaped (..., n_wheels) for counts and travel and (..., 3) for
+    body displacements (dx, dy, dth): distance unit of the profile, radians,
+    REP 103 body frame (x forward, y left, counter-clockwise positive).
+    """
+
+    def __init__(self, profile: Profile) -> None:
+        self.profile = profile
+        self.n_wheels = len(profile.wheels)
+        self.matrix = observation_matrix(profile.wheels)
+        self.travel_per_count = np.array([w.travel_per_count for w in profile.wheels])
+        # Least squares (exact for three wheels): pinv solves A d = s.
+        self._solve = np.linalg.pinv(self.matrix)
+        # With the IMU giving dth: A[:, :2] [dx dy] = s - A[:, 2] dth.
+        self._solve_xy = np.linalg.pinv(self.matrix[:, :2])
+
+    def travel(self, dcounts: np.ndarray) -> np.ndarray:
+        """Encoder count changes (..., n) -> signed wheel travel (..., n)."""
+        return np.asarray(dcounts, dtype=float) * self.travel_per_count
+
+    def body_delta(self, travel: np.ndarray, dth_imu: np.ndarray | None = None) -> np.ndarray:
+        """Wheel travel (..., n) -> body displacement (..., 3).
+
+        Where dth_imu (shape (...)) is given and finite, heading change comes
+        from the IMU and the wheels give dx, dy; elsewhere the wheels give all.
+        """
+        travel = np.asarray(travel, dtype=float)
+        delta = travel @ self._solve.T
+        if dth_imu is not None:
+            dth = np.asarray(dth_imu, dtype=float)
+            use = np.isfinite(dth)
+            dth_safe = np.where(use, dth, 0.0)
+            xy = (travel - dth_safe[..., None] * self.matrix[:, 2]) @ self._solve_xy.T
+            delta = np.where(use[..., None], np.concatenate([xy, dth_safe[..., None]], axis=-1), delta)
+        return delta
+
+    def wheel_travel(self, body_delta: np.ndarray) -> np.ndarray:
+        """The forward model: body displacement (..., 3) -> wheel travel (..., n)."""
+        return np.asarray(body_delta, dtype=float) @ self.matrix.T
