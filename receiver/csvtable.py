@@ -24,8 +24,10 @@ def _digits(magnitude: np.ndarray, width: int) -> np.ndarray:
 def format_column(values: np.ndarray, decimals: int) -> tuple[np.ndarray, np.ndarray]:
     """(bytes (N, W) uint8, used (N, W) bool) for a float or int column.
 
-    decimals = 0 writes integers without a point. Values must stay below
-    about 9e18 / 10**decimals in magnitude (positions, seconds and counts do).
+    decimals = 0 writes integers without a point. Digits are exact while
+    |value| * 10**decimals < 2**53 (with 6 decimals: below 9e9, far beyond
+    any field position or robot clock); past that they carry a double's
+    rounding, and values must stay below 9e18 / 10**decimals.
     """
     values = np.asarray(values)
     n = len(values)
