@@ -15,11 +15,14 @@ from typing import Sequence
 import numpy as np
 
 from receiver import __version__, csvtable
+from receiver.cli_live import add_live_commands
 from receiver.errors import PodwatchError, UsageError
 from receiver.integrate import METHODS, wrap_angle
+from receiver.paths import PATHS
 from receiver.profile import Profile, load_profile
 from receiver.recompute import Tracker
-from receiver.recording import read_recording
+from receiver.recording import RecordingWriter, read_recording
+from receiver.simulate import FAULT_SYNTAX, parse_faults, simulate
 
 CSV_HEADER = (
     b"robot,seq,t,x,y,heading,reported_x,reported_y,reported_heading,position_error,heading_error,loop\n"
@@ -136,6 +139,20 @@ def _summary(robot: str, profile: Profile, result) -> str:
     return text
 
 
+def cmd_simulate(args: argparse.Namespace) -> int:
+    profile = load_profile(args.profile)
+    faults = parse_faults(args.fault or (), profile)
+    run = simulate(profile, args.path, args.rate, args.duration, args.seed, faults, args.near_wrap, args.imu)
+    # The receiver's wall clock is synthetic: now, plus each message's arrival time.
+    with RecordingWriter(args.out, [profile]) as writer:
+        writer.write(run.stamp_rx(time.time()))
+    print(
+        f"{profile.name}: {run.path}, {len(run.t)} loops, {len(run.samples)} messages received -> {args.out}",
+        file=sys.stderr,
+    )
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="podwatch", description="Check a robot's tracking-wheel odometry against an independent recompute."
@@ -149,6 +166,23 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--method", default="arc", help="integration method: arc (default), midpoint or euler")
     p.add_argument("--out", metavar="CSV", help="write the CSV here instead of standard output")
     p.set_defaults(run=cmd_recompute)
+
+    p = sub.add_parser("simulate", help="a simulated robot that writes a recording")
+    p.add_argument("--profile", required=True, metavar="P", help="robot profile TOML of the simulated robot")
+    p.add_argument("--path", default="square", choices=PATHS, help="what the robot drives (default square)")
+    p.add_argument("--rate", type=float, default=100.0, metavar="HZ", help="robot loop rate (default 100)")
+    p.add_argument("--duration", type=float, default=20.0, metavar="S", help="seconds to simulate (default 20)")
+    p.add_argument("--seed", type=int, default=1, metavar="N", help="random seed (default 1)")
+    p.add_argument(
+        "--fault", action="append", metavar="NAME", help=f"a mistake to simulate, repeatable: {FAULT_SYNTAX}"
+    )
+    p.add_argument("--near-wrap", action="store_true", help="start counters and seq near their 32-bit wrap")
+    p.add_argument("--imu", action="store_true", help="send IMU headings (always sent when the profile uses the IMU)")
+    destination = p.add_mutually_exclusive_group(required=True)
+    destination.add_argument("--out", metavar="FILE", help="write a recording (.jsonl, or .jsonl.gz for gzip)")
+    p.set_defaults(run=cmd_simulate)
+
+    add_live_commands(sub)
     return parser
 
 

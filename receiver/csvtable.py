@@ -15,60 +15,71 @@ import numpy as np
 _ROWS_PER_BLOCK = 100_000  # bounds memory: one block's byte matrix is a few tens of MB
 
 
-def _digits(magnitude: np.ndarray, width: int) -> np.ndarray:
-    """Decimal digits of non-negative int64 values, most significant first, (N, width) uint8."""
-    powers = 10 ** np.arange(width - 1, -1, -1, dtype=np.int64)
-    return ((magnitude[:, None] // powers) % 10).astype(np.uint8) + ord("0")
-
-
-def format_column(values: np.ndarray, decimals: int) -> tuple[np.ndarray, np.ndarray]:
-    """(bytes (N, W) uint8, used (N, W) bool) for a float or int column.
-
-    decimals = 0 writes integers without a point. Digits are exact while
-    |value| * 10**decimals < 2**53 (with 6 decimals: below 9e9, far beyond
-    any field position or robot clock); past that they carry a double's
-    rounding, and values must stay below 9e18 / 10**decimals.
-    """
+def _column_layout(values: np.ndarray, decimals: int):
+    """Scaled magnitudes and the widths of one column's cells."""
     values = np.asarray(values)
     n = len(values)
-    finite = np.isfinite(values) if values.dtype.kind == "f" else np.ones(n, dtype=bool)
     if values.dtype.kind == "f":
+        finite = np.isfinite(values)
         scaled = np.rint(np.abs(np.where(finite, values, 0.0)) * 10.0**decimals).astype(np.int64)
     else:
+        finite = np.ones(n, dtype=bool)
         scaled = np.abs(values.astype(np.int64))
     negative = (values < 0) & (scaled != 0) & finite
-    whole, frac = np.divmod(scaled, 10**decimals)
-    n_int = max(len(str(int(whole.max()))) if n else 1, 1)
-    used_int = np.ones((n, n_int), dtype=bool)
-    if n_int > 1:
-        # A digit column is used when the value has at least that many digits (always the units).
-        thresholds = 10 ** np.arange(n_int - 1, 0, -1, dtype=np.int64)
-        used_int[:, :-1] = whole[:, None] >= thresholds
-    parts = [np.full((n, 1), ord("-"), dtype=np.uint8), _digits(whole, n_int)]
-    used = [negative[:, None], used_int & finite[:, None]]
-    if decimals:
-        parts += [np.full((n, 1), ord("."), dtype=np.uint8), _digits(frac, decimals)]
-        used += [np.repeat(finite[:, None], 1 + decimals, axis=1)]
-    return np.hstack(parts), np.hstack(used)
+    whole = scaled // 10**decimals
+    n_int = len(str(int(whole.max()))) if n else 1
+    return finite, scaled, negative, whole, n_int
+
+
+def _fill_column(chars, used, row, layout, decimals) -> None:
+    """Write one column's cells into the (bytes, rows) matrix from byte ``row`` on."""
+    finite, scaled, negative, whole, n_int = layout
+    chars[row] = ord("-")
+    used[row] = negative
+    width = n_int + (1 + decimals if decimals else 0)
+    end = row + 1 + width
+    rest = scaled.copy()
+    for pos in range(end - 1, row, -1):
+        used[pos] = finite
+        if decimals and pos == end - 1 - decimals:
+            chars[pos] = ord(".")
+            continue
+        rest, digit = np.divmod(rest, 10)
+        chars[pos] = digit
+        chars[pos] += ord("0")
+    # Leading integer digits are used only when the value has that many.
+    for k in range(1, n_int):
+        used[row + k] &= whole >= 10 ** (n_int - k)
 
 
 def format_rows(columns: Sequence[tuple[np.ndarray, int] | bytes]) -> bytes:
-    """CSV text of the given columns; a ``bytes`` entry is a constant cell (e.g. a name)."""
+    """CSV text of the given columns; a ``bytes`` entry is a constant cell (e.g. a name).
+
+    Float columns give (values, decimals); decimals = 0 writes integers
+    without a point. Digits are exact while |value| * 10**decimals < 2**53
+    (with 6 decimals: below 9e9, far beyond any field position or robot
+    clock); past that they carry a double's rounding, and values must stay
+    below 9e18 / 10**decimals. NaN writes an empty cell.
+    The matrix is built transposed, one byte position per row, so that every
+    write is contiguous; one transpose at the end puts the rows in order.
+    """
     n = next(len(c[0]) for c in columns if not isinstance(c, bytes))
-    chars, used = [], []
-    for i, column in enumerate(columns):
-        if isinstance(column, bytes):
-            cell = np.frombuffer(column, dtype=np.uint8)
-            chars.append(np.broadcast_to(cell, (n, len(cell))))
-            used.append(np.ones((n, len(cell)), dtype=bool))
+    layouts = [c if isinstance(c, bytes) else _column_layout(*c) for c in columns]
+    widths = [len(lay) if isinstance(lay, bytes) else 1 + lay[4] + (1 + c[1] if c[1] else 0) for lay, c in zip(layouts, columns)]
+    total = sum(widths) + len(columns)
+    chars = np.empty((total, n), dtype=np.uint8)
+    used = np.ones((total, n), dtype=bool)
+    pos = 0
+    for column, layout, width in zip(columns, layouts, widths):
+        if isinstance(layout, bytes):
+            chars[pos : pos + width] = np.frombuffer(layout, dtype=np.uint8)[:, None]
         else:
-            c, u = format_column(*column)
-            chars.append(c)
-            used.append(u)
-        end = ord("\n") if i == len(columns) - 1 else ord(",")
-        chars.append(np.full((n, 1), end, dtype=np.uint8))
-        used.append(np.ones((n, 1), dtype=bool))
-    return np.hstack(chars)[np.hstack(used)].tobytes()
+            _fill_column(chars, used, pos, layout, column[1])
+        pos += width
+        chars[pos] = ord(",")
+        pos += 1
+    chars[-1] = ord("\n")
+    return chars.T[used.T].tobytes()
 
 
 def write(out: BinaryIO, columns: Sequence[tuple[np.ndarray, int] | bytes]) -> None:

@@ -77,12 +77,13 @@ def integrate(deltas: np.ndarray, start: np.ndarray, method: str = "arc", anchor
     start = np.asarray(start, dtype=float)
     if n == 0:
         return np.empty((0, 3))
-    if anchors is None:
-        is_anchor = np.zeros(n, dtype=bool)
-        anchor_pose = np.empty((0, 3))
-    else:
-        is_anchor = np.isfinite(anchors).all(axis=1)
-        anchor_pose = np.asarray(anchors, dtype=float)[is_anchor]
+    is_anchor = np.zeros(n, dtype=bool) if anchors is None else np.isfinite(anchors).all(axis=1)
+    if not is_anchor.any():
+        # One segment from `start`: plain cumulative sums.
+        heading = start[2] + np.cumsum(deltas[:, 2])
+        moved = _rotate(local_displacement(deltas, method), heading - deltas[:, 2])
+        return np.column_stack([start[:2] + np.cumsum(moved, axis=0), heading])
+    anchor_pose = np.asarray(anchors, dtype=float)[is_anchor]
     # Segment k starts at the last anchor at or before k (segment 0 at `start`).
     seg = np.cumsum(is_anchor)
     seg_start_pose = np.vstack([start[None, :], anchor_pose])

@@ -10,6 +10,7 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 from enum import StrEnum
+from operator import attrgetter
 from typing import Annotated, Literal
 
 import msgspec
@@ -17,7 +18,8 @@ import msgspec
 PROTOCOL_VERSION = 1
 MAX_MESSAGE_BYTES = 64 * 1024  # one datagram or frame; keeps a bad sender's cost bounded
 MAX_BATCH = 256
-ROBOT_PATTERN = r"^[A-Za-z0-9_.\-]{1,32}$"
+# \Z, not $: Python's $ also matches before a trailing newline ("bot\n").
+ROBOT_PATTERN = r"^[A-Za-z0-9_.\-]{1,32}\Z"
 
 _Finite = float  # msgspec refuses NaN/Infinity tokens and numbers past a double's range
 _Count = Annotated[int, msgspec.Meta(ge=-(2**31), le=2**32 - 1)]  # signed or unsigned 32-bit counters
@@ -31,7 +33,9 @@ class Sample(msgspec.Struct, gc=False, omit_defaults=True):
     """
 
     v: Literal[1]
-    robot: Annotated[str, msgspec.Meta(pattern=ROBOT_PATTERN)]
+    # Length here; the characters are checked once per distinct name by
+    # split_bad_names: a regex per message halves the decoder's speed.
+    robot: Annotated[str, msgspec.Meta(min_length=1, max_length=32)]
     seq: Annotated[int, msgspec.Meta(ge=0, le=2**32 - 1)]
     t: _Finite
     ticks: list[_Count]
@@ -59,6 +63,7 @@ class Reason(StrEnum):
 class Failure:
     reason: Reason
     detail: str
+    robot: str | None = None  # the sender, when the bad message still names a valid robot
 
     def __str__(self) -> str:
         return f"{self.reason}: {self.detail}"
@@ -67,18 +72,35 @@ class Failure:
 _one = msgspec.json.Decoder(Sample)
 _one_or_batch = msgspec.json.Decoder(Sample | list[Sample])
 _raw_items = msgspec.json.Decoder(list[msgspec.Raw])
+
+
+class _Sender(msgspec.Struct):
+    robot: Annotated[str, msgspec.Meta(pattern=ROBOT_PATTERN)]
+
+
+_sender = msgspec.json.Decoder(_Sender)
 _NON_FINITE_TOKEN = re.compile(rb"(?<![\w\"])-?(?:NaN|Infinity|inf|nan)(?![\w\"])")
+# The same tokens where a JSON value starts (after ":", "[" or ","). A robot
+# name cannot hold those characters, so rewriting them to an out-of-range
+# number never changes a valid message; it only lets a batch with one NaN be
+# split into elements, each then refused as non-finite on its own.
+_NON_FINITE_VALUE = re.compile(rb"(?<=[:\[,])(\s*)-?(?:NaN|Infinity|inf|nan)(?![\w\"])")
+_OUT_OF_RANGE_NUMBER = rb"\g<1>1e999"
 
 
-def classify_error(exc: msgspec.MsgspecError, data: bytes) -> Failure:
+def classify_error(exc: msgspec.MsgspecError | RecursionError, data: bytes) -> Failure:
     """Map a msgspec error to our reason codes, with its one-line text."""
     text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-    if isinstance(exc, msgspec.ValidationError):
+    if isinstance(exc, RecursionError):
+        text = "nested deeper than the decoder allows"
+    if isinstance(exc, RecursionError):
+        reason = Reason.TOO_LARGE
+    elif isinstance(exc, msgspec.ValidationError):
         if text.startswith("Object missing required field"):
             reason = Reason.MISSING_FIELD
         elif text.startswith("Number out of range"):
             reason = Reason.NON_FINITE
-        elif re.match(r"Expected `\w+`, got", text) or "of length" in text and "array" in text:
+        elif re.match(r"Expected `[^`]+`, got", text) or "of length" in text and "array" in text:
             reason = Reason.WRONG_TYPE
         else:
             reason = Reason.OUT_OF_RANGE
@@ -89,12 +111,46 @@ def classify_error(exc: msgspec.MsgspecError, data: bytes) -> Failure:
     return Failure(reason, text)
 
 
+_ROBOT_NAME = re.compile(ROBOT_PATTERN)
+_good_names: set[str] = set()
+_GOOD_NAMES_CACHED = 4096  # bounds the cache against a flood of made-up names
+
+
+def split_bad_names(samples: list[Sample]) -> tuple[list[Sample], list[Failure]]:
+    """Keep samples whose robot name is 1-32 of A-Z a-z 0-9 _ . -; refuse the rest."""
+    names = set(map(attrgetter("robot"), samples))
+    if names <= _good_names:
+        return samples, []
+    bad = {name for name in names if not _ROBOT_NAME.match(name)}
+    if len(_good_names) < _GOOD_NAMES_CACHED:
+        _good_names.update(names - bad)
+    if not bad:
+        return samples, []
+    failures = [
+        Failure(Reason.OUT_OF_RANGE, f"robot name {s.robot!r} is not 1-32 of A-Z a-z 0-9 _ . -")
+        for s in samples
+        if s.robot in bad
+    ]
+    return [s for s in samples if s.robot not in bad], failures
+
+
+def _named(failure: Failure, data: bytes) -> Failure:
+    """The failure with its robot filled in when the message still names one."""
+    try:
+        robot = _sender.decode(data).robot
+    except (msgspec.MsgspecError, RecursionError):
+        return failure
+    return Failure(failure.reason, failure.detail, robot)
+
+
 def decode_message(data: bytes) -> Sample | Failure:
     """Decode exactly one message (a recording line, or one batch element)."""
     try:
-        return _one.decode(data)
-    except msgspec.MsgspecError as exc:
-        return classify_error(exc, data)
+        sample = _one.decode(data)
+    except (msgspec.MsgspecError, RecursionError) as exc:
+        return _named(classify_error(exc, data), data)
+    good, failures = split_bad_names([sample])
+    return failures[0] if failures else sample
 
 
 def decode(data: bytes) -> tuple[list[Sample], list[Failure]]:
@@ -106,23 +162,33 @@ def decode(data: bytes) -> tuple[list[Sample], list[Failure]]:
         return [], [Failure(Reason.TOO_LARGE, f"{len(data)} bytes, limit {MAX_MESSAGE_BYTES}")]
     try:
         decoded = _one_or_batch.decode(data)
-    except msgspec.MsgspecError as exc:
+    except (msgspec.MsgspecError, RecursionError) as exc:
         return _decode_items(data, exc)
     if isinstance(decoded, Sample):
-        return [decoded], []
+        return split_bad_names([decoded])
     if len(decoded) > MAX_BATCH:
         return [], [Failure(Reason.TOO_LARGE, f"batch of {len(decoded)} messages, limit {MAX_BATCH}")]
-    return decoded, []
+    return split_bad_names(decoded)
 
 
-def _decode_items(data: bytes, first_error: msgspec.MsgspecError) -> tuple[list[Sample], list[Failure]]:
+def _decode_items(
+    data: bytes, first_error: msgspec.MsgspecError | RecursionError
+) -> tuple[list[Sample], list[Failure]]:
     """Slow path after a failure: separate a batch's good elements from bad ones."""
     stripped = data.lstrip()
     if not stripped.startswith(b"["):
-        return [], [classify_error(first_error, data)]
+        return [], [_named(classify_error(first_error, data), data)]
     try:
         items = _raw_items.decode(data)
-    except msgspec.MsgspecError as exc:
+    except msgspec.DecodeError as exc:
+        repaired = _NON_FINITE_VALUE.sub(_OUT_OF_RANGE_NUMBER, data)
+        if repaired == data:
+            return [], [classify_error(exc, data)]
+        try:
+            items = _raw_items.decode(repaired)
+        except (msgspec.MsgspecError, RecursionError):
+            return [], [classify_error(exc, data)]
+    except (msgspec.MsgspecError, RecursionError) as exc:
         return [], [classify_error(exc, data)]
     if len(items) > MAX_BATCH:
         return [], [Failure(Reason.TOO_LARGE, f"batch of {len(items)} messages, limit {MAX_BATCH}")]

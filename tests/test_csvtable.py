@@ -33,7 +33,7 @@ def test_floats_match_python_format(values, decimals):
     for got_line, want_line in zip(text.splitlines(), expected.splitlines()):
         if got_line != want_line:
             want = float(want_line)
-            assert abs(float(got_line) - want) <= max(1.01 * 10.0**-decimals, 4e-16 * abs(want))
+            assert abs(float(got_line) - want) <= 1.01 * 10.0**-decimals + 4e-16 * abs(want)
     assert len(text.splitlines()) == len(values)
 
 

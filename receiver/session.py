@@ -1,0 +1,416 @@
+"""Live sessions: one per robot id, fed decoded samples by the transports.
+
+Owns the receiver-level rules the pure decoder cannot apply (ticks length per
+profile, the robot limit), each robot's streaming recompute, time-windowed
+ring buffers and link statistics. Transports call ``ingest`` from their own
+threads; it only queues. ``process`` does the work in small batches. This
+module never opens a socket and never reads a clock: times are arguments.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import Counter, defaultdict
+from dataclasses import dataclass, field
+from enum import Enum
+from typing import Callable, Protocol
+
+import numpy as np
+from scipy.signal import lfilter
+
+from receiver.counts import ACCEPTED, Kind, classify
+from receiver.profile import Profile
+from receiver.protocol import Failure, Reason, Sample
+from receiver.recompute import Columns, Result, Tracker, columns_from_samples, loop_periods
+from receiver.ring import RingBuffer
+
+DEFAULT_MAX_ROBOTS = 64  # DESIGN.md, wire protocol: 64 robots at once by default
+DEFAULT_WINDOW_S = 600.0
+DEFAULT_QUIET_AFTER_S = 1.0
+# Hard cap on one robot's buffered rows: 600 s at 1 kHz. With 13 float64
+# columns that is about 60 MB for a robot that really streams at 1 kHz;
+# slower robots only grow their buffer as far as the window needs.
+DEFAULT_MAX_ROWS = 600_000
+# RFC 3550 section 6.4.1 interarrival jitter: J += (|D| - J) / 16.
+_JITTER_GAIN = 1.0 / 16.0
+
+
+class LinkState(Enum):
+    WAITING = "waiting"  # declared by a profile, nothing heard yet
+    LIVE = "live"
+    QUIET = "quiet"  # heard before, silent for longer than quiet_after_s
+
+
+class LinkEvent(Enum):
+    DATA = "data"
+    SILENCE = "silence"
+
+
+# Every allowed move; a pair missing here leaves the state as it is.
+TRANSITIONS: dict[tuple[LinkState, LinkEvent], LinkState] = {
+    (LinkState.WAITING, LinkEvent.DATA): LinkState.LIVE,
+    (LinkState.LIVE, LinkEvent.DATA): LinkState.LIVE,
+    (LinkState.LIVE, LinkEvent.SILENCE): LinkState.QUIET,
+    (LinkState.QUIET, LinkEvent.DATA): LinkState.LIVE,
+}
+
+
+class Recorder(Protocol):
+    """What the hub needs of a recording writer (recording.RecordingWriter)."""
+
+    def write(self, samples: list[Sample]) -> None: ...
+
+    def flush(self, now: float | None = None) -> bool: ...
+
+
+@dataclass
+class LinkStats:
+    """Counts since the session started; see ``RobotSnapshot`` for meanings."""
+
+    messages: int = 0
+    gaps: int = 0
+    duplicates: int = 0
+    late: int = 0
+    restarts: int = 0
+    resets: int = 0
+    errors: Counter = field(default_factory=Counter)
+    jitter_s: float = float("nan")
+    first_rx: float = float("nan")
+    last_rx: float = float("nan")
+
+
+@dataclass(frozen=True)
+class RobotSnapshot:
+    """One robot as the dashboard and the summary see it.
+
+    ``gaps``: sequence numbers skipped when the next sample arrived (some
+    may arrive later and count as ``late``). ``pose`` and ``reported`` are
+    REP 103, the profile's distance unit and radians (``reported`` is in the
+    robot's own conventions when it has no profile). Loop statistics are in
+    seconds over the buffered window; ``jitter_s`` is the RFC 3550 smoothed
+    interarrival jitter of the receiver's clock against the robot's.
+    """
+
+    robot: str
+    state: LinkState
+    has_profile: bool
+    messages: int
+    rate_hz: float
+    gaps: int
+    duplicates: int
+    late: int
+    restarts: int
+    resets: int
+    errors: dict[str, int]
+    loop_mean_s: float
+    loop_p50_s: float
+    loop_p95_s: float
+    loop_max_s: float
+    jitter_s: float
+    pose: tuple[float, float, float] | None
+    reported: tuple[float, float, float] | None
+    position_error: float
+    heading_error: float
+
+
+@dataclass(frozen=True)
+class PoseUpdate:
+    """A robot's latest recompute after one ``process`` call."""
+
+    robot: str
+    seq: int
+    t: float
+    rx: float
+    pose: tuple[float, float, float]
+    reported: tuple[float, float, float] | None
+    position_error: float
+    heading_error: float
+
+
+# Listener(accepted samples with their source, latest pose per updated robot)
+Listener = Callable[[list[tuple[Sample, str]], dict[str, PoseUpdate]], None]
+
+_RING_FIELDS = {
+    "seq": (np.int64, None),
+    "t": (float, None),
+    "rx": (float, None),
+    "pose": (float, 3),
+    "reported": (float, 3),
+    "position_error": (float, None),
+    "heading_error": (float, None),
+    "loop": (float, None),
+}
+
+
+class Session:
+    """One robot: its tracker (when it has a profile), buffers and link state."""
+
+    def __init__(self, robot: str, profile: Profile | None, window_s: float, max_rows: int, method: str) -> None:
+        self.robot = robot
+        self.profile = profile
+        self.tracker = Tracker(profile, method) if profile is not None else None
+        self.n_wheels: int | None = len(profile.wheels) if profile is not None else None
+        self.state = LinkState.WAITING
+        self.stats = LinkStats()
+        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows)
+        self._last: tuple[int, float] | None = None  # last accepted (seq, t)
+        self._last_rx = np.nan
+        self._jitter_state = None
+
+    def move(self, event: LinkEvent) -> None:
+        self.state = TRANSITIONS.get((self.state, event), self.state)
+
+    def feed(self, cols: Columns) -> Result | None:
+        """Take one batch in arrival order; returns the tracker's result, if any."""
+        st = self.stats
+        st.messages += len(cols)
+        if np.isnan(st.first_rx):
+            st.first_rx = float(cols.rx[0])
+        st.last_rx = float(cols.rx[-1])
+        self.move(LinkEvent.DATA)
+        if self.tracker is not None:
+            result = self.tracker.feed(cols)
+            kinds, seq, t, rx = result.kind, result.seq, result.t, result.rx
+            pose, reported, loop = result.pose, result.reported, result.loop_s
+            pos_err, head_err = result.position_error, result.heading_error
+            st.duplicates += result.dropped["duplicate"]
+            st.late += result.dropped["late"]
+        else:
+            result = None
+            kinds_all = classify(cols.seq, cols.t, cols.reset, self._last)
+            keep = np.isin(kinds_all, ACCEPTED)
+            st.duplicates += int(np.count_nonzero(kinds_all == Kind.DUPLICATE))
+            st.late += int(np.count_nonzero(kinds_all == Kind.LATE))
+            c = cols.take(np.flatnonzero(keep))
+            kinds, seq, t, rx = kinds_all[keep], c.seq, c.t, c.rx
+            loop = loop_periods(kinds, seq, t, c.loop, self._last) if len(c) else np.empty(0)
+            reported = c.pose
+            pose = np.full_like(reported, np.nan)
+            pos_err = head_err = np.full(len(c), np.nan)
+        if len(seq) == 0:
+            return result
+        self._count_link(kinds, seq, t, rx)
+        self.ring.append(
+            rx=rx, seq=seq, t=t, pose=pose, reported=reported, position_error=pos_err, heading_error=head_err, loop=loop
+        )
+        return result
+
+    def _count_link(self, kinds: np.ndarray, seq: np.ndarray, t: np.ndarray, rx: np.ndarray) -> None:
+        st = self.stats
+        prev_seq = np.concatenate([[self._last[0] if self._last else seq[0]], seq[:-1]])
+        prev_t = np.concatenate([[self._last[1] if self._last else t[0]], t[:-1]])
+        prev_rx = np.concatenate([[self._last_rx], rx[:-1]])
+        step = kinds == Kind.STEP
+        st.gaps += int(np.sum(((seq - prev_seq) % 2**32 - 1)[step]))
+        st.restarts += int(np.count_nonzero(kinds == Kind.RESTART))
+        st.resets += int(np.count_nonzero(kinds == Kind.RESET))
+        # Transit-time differences D (RFC 3550 6.4.1) over consecutive steps.
+        d = np.abs((rx - prev_rx) - (t - prev_t))[step & np.isfinite(prev_rx)]
+        if len(d):
+            if self._jitter_state is None:
+                self._jitter_state = np.array([(1.0 - _JITTER_GAIN) * d[0]])
+            out, self._jitter_state = lfilter([_JITTER_GAIN], [1.0, -(1.0 - _JITTER_GAIN)], d, zi=self._jitter_state)
+            st.jitter_s = float(out[-1])
+        self._last = (int(seq[-1]), float(t[-1]))
+        self._last_rx = float(rx[-1])
+
+    def snapshot(self, now: float) -> RobotSnapshot:
+        st = self.stats
+        rows = self.ring.view()
+        loop = rows["loop"][np.isfinite(rows["loop"])]
+        rx = rows["rx"]
+        rate = float(np.count_nonzero(rx > now - 1.0)) if len(rx) else 0.0
+        if len(loop):
+            mean, p50, p95, top = float(loop.mean()), *map(float, np.percentile(loop, [50, 95])), float(loop.max())
+        else:
+            mean = p50 = p95 = top = float("nan")
+        pose = reported = None
+        pos_err = head_err = float("nan")
+        if len(rx):
+            if self.tracker is not None:
+                pose = tuple(map(float, rows["pose"][-1]))
+                pos_err = float(rows["position_error"][-1])
+                head_err = float(rows["heading_error"][-1])
+            last_reported = rows["reported"][-1]
+            reported = tuple(map(float, last_reported)) if np.isfinite(last_reported).all() else None
+        return RobotSnapshot(
+            robot=self.robot,
+            state=self.state,
+            has_profile=self.profile is not None,
+            messages=st.messages,
+            rate_hz=rate,
+            gaps=st.gaps,
+            duplicates=st.duplicates,
+            late=st.late,
+            restarts=st.restarts,
+            resets=st.resets,
+            errors={str(reason): n for reason, n in st.errors.items()},
+            loop_mean_s=mean,
+            loop_p50_s=p50,
+            loop_p95_s=p95,
+            loop_max_s=top,
+            jitter_s=st.jitter_s,
+            pose=pose,
+            reported=reported,
+            position_error=pos_err,
+            heading_error=head_err,
+        )
+
+
+class Hub:
+    """Every robot's session, behind one ingest queue.
+
+    ``ingest`` (any thread) only queues a datagram's decode result, so a
+    receive loop spends microseconds on it; ``process`` (one thread, the
+    pump) applies the receiver-level rules, records, recomputes and tells
+    listeners. Robots with a profile get a session up front, in WAITING.
+    """
+
+    def __init__(
+        self,
+        profiles: dict[str, Profile] | None = None,
+        *,
+        recorder: Recorder | None = None,
+        max_robots: int = DEFAULT_MAX_ROBOTS,
+        window_s: float = DEFAULT_WINDOW_S,
+        max_rows: int = DEFAULT_MAX_ROWS,
+        quiet_after_s: float = DEFAULT_QUIET_AFTER_S,
+        method: str = "arc",
+    ) -> None:
+        self.profiles = dict(profiles or {})
+        self.recorder = recorder
+        self.max_robots = max_robots
+        self.window_s = window_s
+        self.max_rows = max_rows
+        self.quiet_after_s = quiet_after_s
+        self.method = method
+        self.errors: Counter = Counter()  # every refused message, by reason
+        self.last_error: str | None = None
+        self.sessions: dict[str, Session] = {}
+        self._listeners: list[Listener] = []
+        self._pending: list[tuple[list[Sample], list[Failure], float, str]] = []
+        self._pending_lock = threading.Lock()
+        self._state_lock = threading.RLock()
+        self._has_pending = threading.Event()
+        for name, profile in self.profiles.items():
+            self.sessions[name] = self._new_session(name, profile)
+
+    def _new_session(self, robot: str, profile: Profile | None) -> Session:
+        return Session(robot, profile, self.window_s, self.max_rows, self.method)
+
+    def add_listener(self, listener: Listener) -> None:
+        """Called after each ``process`` that accepted samples; it must be quick."""
+        self._listeners.append(listener)
+
+    def ingest(self, samples: list[Sample], failures: list[Failure], rx: float, source: str) -> None:
+        """Queue one datagram's (or frame's) decode result; safe from any thread."""
+        with self._pending_lock:
+            self._pending.append((samples, failures, rx, source))
+        self._has_pending.set()
+
+    def wait(self, timeout: float) -> bool:
+        """Block until something is queued (True) or the timeout passes (False)."""
+        return self._has_pending.wait(timeout)
+
+    def process(self, now: float) -> int:
+        """Apply everything queued since the last call; returns samples accepted."""
+        with self._pending_lock:
+            batch, self._pending = self._pending, []
+            self._has_pending.clear()
+        with self._state_lock:
+            accepted: list[tuple[Sample, str]] = []
+            groups: dict[str, list[Sample]] = defaultdict(list)
+            for samples, failures, rx, source in batch:
+                for failure in failures:
+                    self._refuse(failure)
+                for sample in samples:
+                    if self._admit(sample):
+                        sample.rx = rx
+                        groups[sample.robot].append(sample)
+                        accepted.append((sample, source))
+            if self.recorder is not None:
+                self.recorder.write([sample for sample, _ in accepted])
+                self.recorder.flush(now)
+            updates: dict[str, PoseUpdate] = {}
+            for robot, group in groups.items():
+                session = self.sessions[robot]
+                result = session.feed(columns_from_samples(group, session.n_wheels))
+                if result is not None and len(result.seq):
+                    updates[robot] = _pose_update(robot, result)
+            self.tick(now)
+            if accepted:
+                for listener in self._listeners:
+                    listener(accepted, updates)
+            return len(accepted)
+
+    def _admit(self, sample: Sample) -> bool:
+        """The receiver-level rules: robot limit and ticks length."""
+        session = self.sessions.get(sample.robot)
+        if session is None:
+            if len(self.sessions) >= self.max_robots:
+                self._refuse(
+                    Failure(Reason.TOO_MANY_ROBOTS, f"robot {sample.robot!r} refused: already {self.max_robots} robots")
+                )
+                return False
+            session = self.sessions[sample.robot] = self._new_session(sample.robot, None)
+        if session.n_wheels is None and sample.ticks:
+            session.n_wheels = len(sample.ticks)
+        if len(sample.ticks) != session.n_wheels:
+            expected = "at least one" if session.n_wheels is None else str(session.n_wheels)
+            detail = f"robot {sample.robot!r} sent {len(sample.ticks)} counts, expected {expected}"
+            self._refuse(Failure(Reason.WRONG_TICKS_LENGTH, detail, sample.robot))
+            return False
+        return True
+
+    def _refuse(self, failure: Failure) -> None:
+        self.errors[failure.reason] += 1
+        self.last_error = str(failure)
+        session = self.sessions.get(failure.robot) if failure.robot else None
+        if session is not None:
+            session.stats.errors[failure.reason] += 1
+
+    def tick(self, now: float) -> None:
+        """Move robots silent for longer than quiet_after_s to QUIET."""
+        with self._state_lock:
+            for session in self.sessions.values():
+                if session.state is LinkState.LIVE and now - session.stats.last_rx > self.quiet_after_s:
+                    session.move(LinkEvent.SILENCE)
+
+    def snapshot(self, now: float) -> dict[str, RobotSnapshot]:
+        with self._state_lock:
+            return {robot: s.snapshot(now) for robot, s in self.sessions.items()}
+
+    def history(self, robot: str) -> dict[str, np.ndarray]:
+        """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``)."""
+        with self._state_lock:
+            return {name: column.copy() for name, column in self.sessions[robot].ring.view().items()}
+
+
+def _pose_update(robot: str, result: Result) -> PoseUpdate:
+    reported = result.reported[-1]
+    return PoseUpdate(
+        robot=robot,
+        seq=int(result.seq[-1]),
+        t=float(result.t[-1]),
+        rx=float(result.rx[-1]),
+        pose=tuple(map(float, result.pose[-1])),
+        reported=tuple(map(float, reported)) if np.isfinite(reported).all() else None,
+        position_error=float(result.position_error[-1]),
+        heading_error=float(result.heading_error[-1]),
+    )
+
+
+def summary_line(snap: RobotSnapshot, unit: str | None) -> str:
+    """One line per robot for the end of ``serve`` and ``replay``."""
+    errors = sum(snap.errors.values())
+    text = (
+        f"{snap.robot}: {snap.messages} messages, {snap.gaps} gaps, {snap.duplicates} duplicates, "
+        f"{snap.late} late, {errors} decode errors"
+    )
+    if not snap.has_profile:
+        return text + "; no profile, not recomputed"
+    if np.isfinite(snap.position_error):
+        return text + (
+            f"; final disagreement {snap.position_error:.3f} {unit}, {np.degrees(snap.heading_error):.2f} deg"
+        )
+    return text + "; no reported pose to compare"

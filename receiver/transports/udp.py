@@ -1,0 +1,72 @@
+"""UDP ingest: one blocking receive loop in its own thread.
+
+Owns the UDP socket and nothing else: bytes in, ``protocol.decode``, then
+``Hub.ingest``. A plain blocking loop with a large kernel buffer is used
+instead of an asyncio datagram endpoint because it kept up with about twice
+the rate on these machines (DESIGN.md, "Measured"). It never parses JSON
+itself and never lets a bad datagram stop the loop.
+"""
+
+from __future__ import annotations
+
+import socket
+import threading
+import time
+
+from receiver.protocol import MAX_MESSAGE_BYTES, decode
+from receiver.session import Hub
+
+# Our own choice of port, unassigned as far as we know; --udp overrides it.
+DEFAULT_UDP_PORT = 47474
+DEFAULT_UDP_HOST = "0.0.0.0"  # all interfaces: a robot's broadcast must reach us
+# A big kernel buffer rides out pauses of the Python thread (GIL, GC); Linux
+# caps the request at net.core.rmem_max unless the process may exceed it.
+RECEIVE_BUFFER_BYTES = 16 * 1024 * 1024
+_READ_BYTES = MAX_MESSAGE_BYTES + 1  # one more, so an oversize datagram is seen as such
+SOURCE = "udp"
+
+
+class UdpReceiver:
+    """Listens on (host, port); ``start`` spawns the loop, ``stop`` ends it."""
+
+    def __init__(self, hub: Hub, host: str = DEFAULT_UDP_HOST, port: int = DEFAULT_UDP_PORT) -> None:
+        self.hub = hub
+        self.sock = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
+        self.sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, RECEIVE_BUFFER_BYTES)
+        self.sock.bind((host, port))
+        self.datagrams = 0
+        self._stopping = False
+        self._thread = threading.Thread(target=self._run, name="podwatch-udp", daemon=True)
+
+    @property
+    def address(self) -> tuple[str, int]:
+        return self.sock.getsockname()
+
+    def start(self) -> None:
+        self._thread.start()
+
+    def _run(self) -> None:
+        recv, ingest, clock = self.sock.recv, self.hub.ingest, time.time
+        while True:
+            try:
+                data = recv(_READ_BYTES)
+                rx = clock()
+            except OSError:
+                if self._stopping:
+                    return
+                continue  # e.g. ICMP errors reported on the socket: keep listening
+            if self._stopping:
+                return
+            self.datagrams += 1
+            samples, failures = decode(data)
+            ingest(samples, failures, rx, SOURCE)
+
+    def stop(self) -> None:
+        """End the loop: a datagram to ourselves wakes the blocked receive."""
+        self._stopping = True
+        host, port = self.address
+        wake_host = "127.0.0.1" if host == "0.0.0.0" else host
+        with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as wake:
+            wake.sendto(b"", (wake_host, port))
+        self._thread.join(timeout=2.0)
+        self.sock.close()

@@ -1,0 +1,55 @@
+"""Regenerate the small replay fixtures from the simulated practice robot.
+
+Run with `.venv/bin/python replay_fixtures/regenerate.py`. The output is
+byte-for-byte reproducible: fixed seeds, a fixed creation time and receiver
+clock, and gzip without a timestamp. Each fixture stays well under 300 KB.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from receiver.profile import load_profile
+from receiver.recording import RecordingWriter
+from receiver.simulate import parse_faults, simulate
+
+HERE = Path(__file__).resolve().parent
+CREATED = "2025-01-01T12:00:00+00:00"
+WALL_START_S = 1735732800.0  # CREATED as seconds since the Unix epoch
+
+# (file, profile, path, seconds, faults, simulate options)
+FIXTURES = [
+    ("practice-bot-square.jsonl", "practice-bot.toml", "square", 10.0, [], {}),
+    (
+        "practice-bot-figure-eight-reversed-right.jsonl.gz",
+        "practice-bot.toml",
+        "figure-eight",
+        10.0,
+        ["reversed:right"],
+        {},
+    ),
+    ("practice-bot-metric-wander.jsonl.gz", "practice-bot-metric.toml", "wander", 10.0, [], {"imu": True}),
+    (
+        "practice-bot-packet-faults.jsonl.gz",
+        "practice-bot.toml",
+        "wander",
+        10.0,
+        ["drop:0.05", "reorder:0.02", "duplicate:0.01"],
+        {"near_wrap": True},
+    ),
+    ("practice-bot-guided.jsonl.gz", "practice-bot.toml", "guided", 15.0, [], {}),
+]
+
+
+def main() -> None:
+    for name, profile_file, path, seconds, fault_specs, options in FIXTURES:
+        profile = load_profile(HERE / profile_file)
+        run = simulate(profile, path, 100.0, seconds, 1, parse_faults(fault_specs, profile), **options)
+        out = HERE / name
+        with RecordingWriter(out, [profile], created=CREATED) as writer:
+            writer.write(run.stamp_rx(WALL_START_S))
+        print(f"{name}: {len(run.samples)} messages, {out.stat().st_size / 1024:.0f} KB")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,99 @@
+"""The decoder's bad-input matrix: each malformed kind maps to its reason, and
+a batch keeps its good elements whatever else it holds."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from receiver.protocol import MAX_BATCH, Failure, Reason, Sample, decode, decode_message, encode
+from tests.malformed import DECODER_CASES, GOOD, message, raw
+
+
+def test_a_valid_message_decodes_with_every_field():
+    data = raw(imu=0.25, loop=0.01, reset=True, extra={"ignored": [1, 2]})
+    samples, failures = decode(data)
+    assert failures == []
+    (s,) = samples
+    assert (s.robot, s.seq, s.t, s.ticks, s.pose, s.imu, s.loop, s.reset) == (
+        "practice-bot", 7, 1.25, [10, -20, 30], (1.0, 2.0, 0.5), 0.25, 0.01, True
+    )
+
+
+def test_optional_fields_may_be_absent():
+    (s,), _ = decode(raw(pose=None))
+    assert s.pose is None and s.imu is None and s.loop is None and s.reset is False
+
+
+@pytest.mark.parametrize("label, payload, reason", DECODER_CASES, ids=[c[0] for c in DECODER_CASES])
+def test_each_malformed_kind_has_its_reason(label, payload, reason):
+    samples, failures = decode(payload)
+    assert samples == []
+    assert [f.reason for f in failures] == [reason], failures
+    assert "\n" not in failures[0].detail  # one line, fit for a log
+
+
+def test_boundaries_of_counters_are_accepted():
+    for ticks in ([2**32 - 1, 0, 0], [-(2**31), 0, 0]):
+        assert len(decode(raw(ticks=ticks))[0]) == 1
+    assert decode(raw(seq=2**32 - 1))[0][0].seq == 2**32 - 1
+    assert decode(raw(robot="A" * 32))[0][0].robot == "A" * 32
+
+
+def test_a_full_batch_of_256_is_accepted():
+    batch = [message(seq=k) for k in range(MAX_BATCH)]
+    samples, failures = decode(json.dumps(batch).encode())
+    assert failures == [] and [s.seq for s in samples] == list(range(MAX_BATCH))
+
+
+def test_a_batch_keeps_its_good_elements():
+    batch = [
+        message(seq=1),
+        message(seq="two"),
+        message(t="soon"),
+        {"v": 1, "robot": "practice-bot"},
+        message(seq=-5),
+        42,
+        message(seq=6),
+    ]
+    samples, failures = decode(json.dumps(batch).encode())
+    assert [s.seq for s in samples] == [1, 6]
+    assert [f.reason for f in failures] == [
+        Reason.WRONG_TYPE, Reason.WRONG_TYPE, Reason.MISSING_FIELD, Reason.OUT_OF_RANGE, Reason.WRONG_TYPE
+    ]
+
+
+def test_a_batch_with_a_nan_element_keeps_the_others():
+    # NaN is not JSON, so the whole array does not parse; the good ones must survive anyway.
+    good = json.dumps(message(seq=1))
+    bad = json.dumps(message(seq=2, t=123456.5)).replace("123456.5", "NaN")
+    also_good = json.dumps(message(seq=3, note="a:NaN, [Infinity"))
+    samples, failures = decode(f"[{good}, {bad},{also_good}]".encode())
+    assert [s.seq for s in samples] == [1, 3]
+    assert [f.reason for f in failures] == [Reason.NON_FINITE]
+
+
+def test_failures_name_the_robot_when_the_message_does():
+    (failure,) = decode(raw(seq="x"))[1]
+    assert failure.robot == "practice-bot"
+    (failure,) = decode(raw(robot="bad name", seq="x"))[1]
+    assert failure.robot is None
+    assert decode(b"garbage")[1][0].robot is None
+
+
+def test_unknown_fields_are_ignored_and_encode_round_trips():
+    sample = decode_message(raw(colour="red"))
+    assert isinstance(sample, Sample)
+    assert decode_message(encode(sample)) == sample
+    assert b"colour" not in encode(sample)
+
+
+def test_failure_prints_as_reason_and_detail():
+    failure = decode_message(raw(seq=-1))
+    assert isinstance(failure, Failure)
+    assert str(failure).startswith("out_of_range: ") and "seq" in str(failure)
+
+
+def test_good_message_is_unchanged_by_the_matrix_helpers():
+    assert json.loads(raw()) == GOOD
