@@ -100,4 +100,8 @@ def classify(
 def count_change(now: np.ndarray, before: np.ndarray) -> np.ndarray:
     """Counter change now - before, unwrapped across the signed 32-bit rollover."""
     diff = np.asarray(now, dtype=np.int64) - np.asarray(before, dtype=np.int64)
-    return (diff + COUNT_MODULUS // 2) % COUNT_MODULUS - COUNT_MODULUS // 2
+    half = COUNT_MODULUS // 2
+    wrapped = (diff >= half) | (diff < -half)
+    if np.any(wrapped):  # rare: only where a counter rolled over
+        diff = np.where(wrapped, (diff + half) % COUNT_MODULUS - half, diff)
+    return diff

@@ -9,7 +9,6 @@ pose logic of its own.
 from __future__ import annotations
 
 import asyncio
-import logging
 import signal
 import threading
 import time
@@ -28,7 +27,6 @@ from receiver.transports.websocket import WebSocketReceiver
 
 # How long the pump sleeps when nothing arrives; it also paces QUIET checks.
 PUMP_IDLE_S = 0.1
-log = logging.getLogger("podwatch")
 
 
 class Pump:

@@ -160,15 +160,16 @@ class Tracker:
             "duplicate": int(np.count_nonzero(kinds_all == Kind.DUPLICATE)),
             "late": int(np.count_nonzero(kinds_all == Kind.LATE)),
         }
-        c = cols.take(np.flatnonzero(accepted))
+        c = cols if accepted.all() else cols.take(np.flatnonzero(accepted))
         kinds = kinds_all[accepted]
         n = len(c)
         if n == 0:
             return self._empty(dropped)
         is_anchor = _IS_ANCHOR[kinds]
 
-        prev_ticks = np.vstack([self._last_ticks if self._last_ticks is not None else c.ticks[:1], c.ticks[:-1]])
-        dcounts = count_change(c.ticks, prev_ticks)
+        dcounts = np.empty_like(c.ticks)
+        dcounts[1:] = count_change(c.ticks[1:], c.ticks[:-1])
+        dcounts[0] = 0 if self._last_ticks is None else count_change(c.ticks[0], self._last_ticks)
         dcounts[is_anchor] = 0
         dth_imu = None
         if self.profile.uses_imu:
@@ -178,9 +179,15 @@ class Tracker:
         deltas[is_anchor] = 0.0
 
         reported = reported_to_rep103(c.pose, self.profile.reported)
-        anchors = np.where(is_anchor[:, None], reported, np.nan)
-        anchors[(kinds == Kind.FIRST) & ~np.isfinite(reported).all(axis=1)] = 0.0
-        poses = integrate(deltas, self.pose, self.method, anchors)
+        # Anchors re-set the pose to the reported one; a first sample without a
+        # pose anchors at the origin, a reset or restart without one carries on.
+        anchor_at = np.flatnonzero(is_anchor)
+        anchor_pose = reported[anchor_at]
+        has_pose = np.isfinite(anchor_pose).all(axis=1)
+        first_without = (kinds[anchor_at] == Kind.FIRST) & ~has_pose
+        anchor_pose[first_without] = 0.0
+        keep = has_pose | first_without
+        poses = integrate(deltas, self.pose, self.method, anchor_at[keep], anchor_pose[keep])
 
         loop_s = loop_periods(kinds, c.seq, c.t, c.loop, self._last)
 

@@ -10,27 +10,26 @@ date the header: the caller stamps "rx" and says when it is time to flush.
 
 from __future__ import annotations
 
-import gc
 import gzip
+import itertools
+import threading
 import zlib
-from collections import Counter, defaultdict
+from collections import Counter
 from dataclasses import dataclass, field
-from operator import attrgetter
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import BinaryIO, Callable, Iterable, Sequence
 
 import msgspec
-import numpy as np
 
 from receiver.errors import ProfileError, RecordingError
 from receiver.profile import Profile, profile_from_table, profile_to_table
-from receiver.protocol import Failure, Reason, Sample, decode_message, split_bad_names
-from receiver.recompute import Columns, columns_from_samples, concat_columns
+from receiver import bulk
+from receiver.protocol import Sample, decode_message
+from receiver.recompute import Columns, concat_columns
 
 RECORDING_VERSION = 1
 _CHUNK_BYTES = 16 * 1024 * 1024
-_lines = msgspec.json.Decoder(Sample)
 GZIP_MAGIC = b"\x1f\x8b"
 
 Progress = Callable[[int, int], None]
@@ -118,60 +117,56 @@ def _parse_header(line: bytes, path: str) -> tuple[str | None, dict[str, Profile
     return (created if isinstance(created, str) else None), profiles
 
 
-class _Accumulator:
-    """Decoded samples grouped per robot, turned into columns chunk by chunk."""
+class _Lines:
+    """Blocks of complete lines from a (decompressed) stream, header taken off.
 
-    def __init__(self, ticks_length: dict[str, int]) -> None:
-        self.ticks_length = dict(ticks_length)
-        self.parts: dict[str, list[Columns]] = defaultdict(list)
-        self.skipped: Counter = Counter()
-        self.first_failure: str | None = None
+    Iterating yields (block, line number of its first line); afterwards
+    ``header``, ``tail`` (an unterminated last line) and ``cut`` (the error
+    that ended a compressed stream early) tell what else was found.
+    """
 
-    def fail(self, failure: Failure, line_no: int | None, count: int = 1) -> None:
-        self.skipped[failure.reason] += count
-        if self.first_failure is None:
-            where = f"line {line_no}: " if line_no is not None else ""
-            self.first_failure = f"{where}{failure}"
+    def __init__(self, stream: BinaryIO, raw: BinaryIO, path: str, progress: Progress | None) -> None:
+        self.stream, self.raw, self.path, self.progress = stream, raw, path, progress
+        self.total = Path(path).stat().st_size
+        self.header: tuple[str | None, dict[str, Profile]] | None = None
+        self.tail = b""
+        self.cut: Exception | None = None
+        self.seen_any = False
 
-    def add(self, samples: list[Sample]) -> None:
-        robots = set(map(attrgetter("robot"), samples))
-        if len(robots) == 1:  # the common case: no regrouping pass
-            groups = {robots.pop(): samples}
-        else:
-            groups = defaultdict(list)
-            for s in samples:
-                groups[s.robot].append(s)
-        for robot, group in groups.items():
-            n_wheels = self.ticks_length.setdefault(robot, len(group[0].ticks))
-            if set(map(len, map(attrgetter("ticks"), group))) != {n_wheels}:
-                good = [s for s in group if len(s.ticks) == n_wheels]
-                detail = f"robot {robot!r} expects {n_wheels} counts per message"
-                self.fail(Failure(Reason.WRONG_TICKS_LENGTH, detail), None, len(group) - len(good))
-                group = good
-            if group:
-                self.parts[robot].append(columns_from_samples(group, n_wheels))
-
-    def decode_chunk(self, chunk: bytes, first_line_no: int) -> None:
-        try:
-            samples = _lines.decode_lines(chunk)
-        except msgspec.MsgspecError:
-            pass
-        else:
-            samples, failures = split_bad_names(samples)
-            for failure in failures:
-                self.fail(failure, None)
-            self.add(samples)
-            return
-        good: list[Sample] = []
-        for offset, line in enumerate(chunk.split(b"\n")):
-            if not line.strip():
+    def __iter__(self):
+        line_no = 1
+        pending = b""
+        first = True
+        while True:
+            block, cut = _read_block(self.stream)
+            if cut is not None:
+                if first and not pending and not block:
+                    raise RecordingError(f"{self.path}: not a readable gzip file ({cut})") from cut
+                self.cut = cut
+            if not block:
+                break
+            self.seen_any = True
+            data = pending + block
+            end = data.rfind(b"\n")
+            if end < 0:
+                pending = data
                 continue
-            result = decode_message(line)
-            if isinstance(result, Sample):
-                good.append(result)
-            else:
-                self.fail(result, first_line_no + offset)
-        self.add(good)
+            body, pending = data[: end + 1], data[end + 1 :]
+            if first:
+                first = False
+                head, _, rest = body.partition(b"\n")
+                self.header = _parse_header(head, self.path)
+                if self.header is not None:
+                    body, line_no = rest, 2
+            if self.progress is not None:
+                self.progress(self.raw.tell(), self.total)
+            yield body, line_no
+            line_no += body.count(b"\n")
+        if first and pending.strip():
+            self.header = _parse_header(pending, self.path)
+            if self.header is not None:
+                raise RecordingError(f"{self.path}: the recording has a header but no messages")
+        self.tail = pending
 
 
 def read_recording(
@@ -181,82 +176,39 @@ def read_recording(
 
     ``ticks_length`` gives the expected number of counts per robot (from the
     profiles in use); messages of another length are skipped and counted.
-    The garbage collector is paused during the bulk decode: the decoded
-    objects hold no cycles, and collection passes over them cost more than
-    the decode itself (measured in DESIGN.md).
+    Large files are decoded by two worker processes (bulk.py).
     """
     path = str(path)
     stream, raw = _open(path)
-    total = Path(path).stat().st_size
     warnings: list[str] = []
-    created: str | None = None
-    profiles: dict[str, Profile] = {}
-    acc: _Accumulator | None = None
-    line_no = 1
-    pending = b""
-    first = True
-    truncated_stream = False
-    gc_was_enabled = gc.isenabled()
-    gc.disable()
-    try:
-        with stream, raw:
-            while True:
-                block, cut = _read_block(stream)
-                if cut is not None:
-                    if first and not pending and not block:
-                        raise RecordingError(f"{path}: not a readable gzip file ({cut})") from cut
-                    truncated_stream = True
-                if not block:
-                    break
-                data = pending + block
-                cut = data.rfind(b"\n")
-                if cut < 0:
-                    pending = data
-                    continue
-                body, pending = data[: cut + 1], data[cut + 1 :]
-                if first:
-                    first = False
-                    head, _, body = body.partition(b"\n")
-                    header = _parse_header(head, path)
-                    if header is not None:
-                        created, header_profiles = header
-                        profiles.update(header_profiles)
-                        body_start = 2
-                    else:
-                        body, body_start = head + b"\n" + body, 1
-                    lengths = {name: len(p.wheels) for name, p in profiles.items()}
-                    lengths.update(ticks_length or {})
-                    acc = _Accumulator(lengths)
-                    line_no = body_start
-                acc.decode_chunk(body, line_no)
-                line_no += body.count(b"\n")
-                if progress is not None:
-                    progress(raw.tell(), total)
-            if pending.strip():
-                if acc is None:
-                    header = _parse_header(pending, path)
-                    if header is not None:
-                        raise RecordingError(f"{path}: the recording has a header but no messages")
-                    acc = _Accumulator(ticks_length or {})
-                result = decode_message(pending)
-                if isinstance(result, Sample):
-                    acc.add([result])
-                else:
-                    warnings.append(f"skipped a truncated last line ({len(pending)} bytes): {result}")
-            if truncated_stream:
-                warnings.append("the compressed stream ends early (receiver killed mid-write?); read what was there")
-    finally:
-        if gc_was_enabled:
-            gc.enable()
-    if acc is None:
+    with stream, raw:
+        lines = _Lines(stream, raw, path, progress)
+        blocks = iter(lines)
+        first = next(blocks, None)
+        profiles = lines.header[1] if lines.header else {}
+        lengths = {name: len(p.wheels) for name, p in profiles.items()}
+        lengths.update(ticks_length or {})
+        # Worker processes are forked: only from a process with no other threads.
+        parallel = lines.total >= bulk.PARALLEL_FROM_BYTES and threading.active_count() == 1
+        decoded = bulk.decode_blocks(itertools.chain([first] if first else [], blocks), lengths, parallel)
+        if lines.tail.strip():
+            result = decode_message(lines.tail)
+            if isinstance(result, Sample):
+                decoded.add([result])
+            else:
+                warnings.append(f"skipped a truncated last line ({len(lines.tail)} bytes): {result}")
+        if lines.cut is not None:
+            warnings.append("the compressed stream ends early (receiver killed mid-write?); read what was there")
+    if not lines.seen_any:
         raise RecordingError(f"{path}: empty recording")
-    if acc.skipped:
-        reasons = ", ".join(f"{reason} {count}" for reason, count in sorted(acc.skipped.items()))
-        warnings.append(f"skipped {sum(acc.skipped.values())} bad messages ({reasons}); first: {acc.first_failure}")
-    robots = {robot: concat_columns(parts) for robot, parts in acc.parts.items()}
+    if decoded.skipped:
+        reasons = ", ".join(f"{reason} {count}" for reason, count in sorted(decoded.skipped.items()))
+        warnings.append(f"skipped {sum(decoded.skipped.values())} bad messages ({reasons}); first: {decoded.first_failure}")
+    robots = {robot: concat_columns(parts) for robot, parts in decoded.parts.items()}
     if not robots:
-        raise RecordingError(f"{path}: no valid messages ({acc.first_failure or 'nothing but blank lines'})")
-    return RecordingData(path, created, profiles, robots, acc.skipped, warnings)
+        raise RecordingError(f"{path}: no valid messages ({decoded.first_failure or 'nothing but blank lines'})")
+    created = lines.header[0] if lines.header else None
+    return RecordingData(path, created, profiles, robots, decoded.skipped, warnings)
 
 
 # Buffered lines go to the file object once they pass this size, so that a

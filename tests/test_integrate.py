@@ -42,11 +42,13 @@ def _exact_arc_factors(theta: float) -> tuple[float, float]:
     return float(a), float(b)
 
 
-@pytest.mark.parametrize("theta", [0.0, 1e-12, -1e-9, 1e-6, -1e-4, 2e-3, 9.9e-3, -0.0101, 0.05])
+@pytest.mark.parametrize("theta", [0.0, 1e-12, -1e-9, 1e-6, -1e-4, 2e-3, 0.05, 0.3, -0.4999, 0.5001, 0.9])
 def test_arc_step_at_tiny_rotations(theta):
     # Near zero rotation the closed form loses digits (trexp2 itself is off
     # by about 1e-8 at 1e-6 rad), so the reference here is the exponential's
-    # series (Modern Robotics, eq. 3.88) summed in exact rational arithmetic.
+    # series (Modern Robotics, eq. 3.88) summed in exact rational arithmetic
+    # (12 terms: exact to double precision up to |t| = 1), on both sides of
+    # podwatch's switch from series to closed form at 0.5 rad.
     a, b = _exact_arc_factors(theta)
     vx, vy = 2.5, -1.5
     got = step(np.zeros(3), np.array([vx, vy, theta]), "arc")
@@ -147,7 +149,7 @@ def test_batch_equals_streaming(seed, n, method, rotation_scale):
     anchors = np.full((n, 3), np.nan)
     marks = rng.random(n) < 0.05
     anchors[marks] = rng.normal(size=(marks.sum(), 3)) * 30
-    batch = integrate(deltas, start, method, anchors)
+    batch = integrate(deltas, start, method, np.flatnonzero(marks), anchors[marks])
     pose = start
     for k in range(n):
         pose = anchors[k] if marks[k] else step(pose, deltas[k], method)
@@ -165,3 +167,18 @@ def test_wrap_angle_range():
     assert np.all(wrapped > -math.pi) and np.all(wrapped <= math.pi)
     np.testing.assert_allclose(np.cos(wrapped), np.cos(angles), atol=1e-12)
     assert wrapped[1] == pytest.approx(math.pi)
+
+
+def test_long_batch_across_blocks_equals_streaming():
+    # The batch path works in blocks of samples; crossing several block
+    # boundaries must not change the result beyond rounding.
+    rng = np.random.default_rng(21)
+    n = 40_000
+    deltas = np.column_stack([rng.normal(0.3, 0.1, n), rng.normal(0, 0.1, n), rng.normal(0, 0.02, n)])
+    start = np.array([10.0, -20.0, 1.0])
+    batch = integrate(deltas, start, "arc")
+    pose = start
+    for k in range(n):
+        pose = step(pose, deltas[k], "arc")
+        if k % 997 == 0 or k == n - 1:
+            np.testing.assert_allclose(batch[k], pose, atol=1e-9, rtol=0)
