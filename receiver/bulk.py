@@ -14,7 +14,7 @@ import multiprocessing
 import os
 from collections import Counter, defaultdict
 from operator import attrgetter
-from typing import Iterable
+from typing import Iterable, Iterator
 
 import msgspec
 
@@ -84,18 +84,30 @@ class Decoded:
                 self.fail(result, first_line_no + offset)
         self.add(good)
 
-    def merge(self, other: Decoded) -> None:
-        """Append another block's result (decoded elsewhere) in order."""
-        for robot, parts in other.parts.items():
+
+
+class Tally:
+    """Per-block results checked against each other: counts per message and skips."""
+
+    def __init__(self, ticks_length: dict[str, int]) -> None:
+        self.ticks_length = dict(ticks_length)
+        self.skipped: Counter = Counter()
+        self.first_failure: str | None = None
+
+    def accept(self, block: Decoded) -> list[tuple[str, Columns]]:
+        """The block's columns per robot, dropping any whose width disagrees with earlier blocks."""
+        kept = []
+        for robot, parts in block.parts.items():
             for part in parts:
                 n_wheels = self.ticks_length.setdefault(robot, part.ticks.shape[1])
                 if part.ticks.shape[1] == n_wheels:
-                    self.parts[robot].append(part)
+                    kept.append((robot, part))
                 else:
-                    self._wrong_length(robot, n_wheels, len(part))
-        self.skipped.update(other.skipped)
+                    self.skipped[Reason.WRONG_TICKS_LENGTH] += len(part)
+        self.skipped.update(block.skipped)
         if self.first_failure is None:
-            self.first_failure = other.first_failure
+            self.first_failure = block.first_failure
+        return kept
 
 
 def _decode_job(job: tuple[bytes, int, dict[str, int]]) -> Decoded:
@@ -105,14 +117,15 @@ def _decode_job(job: tuple[bytes, int, dict[str, int]]) -> Decoded:
     return decoded
 
 
-def decode_blocks(blocks: Iterable[tuple[bytes, int]], ticks_length: dict[str, int], parallel: bool) -> Decoded:
-    """Decode blocks of lines (each with the number of its first line), in order.
+def decode_blocks(
+    blocks: Iterable[tuple[bytes, int]], ticks_length: dict[str, int], parallel: bool
+) -> Iterator[Decoded]:
+    """Decode blocks of lines (each with the number of its first line), yielding results in order.
 
     The garbage collector is paused meanwhile (and in the workers, which
     inherit that): the decoded objects hold no cycles, and collection passes
     over them cost more than the decode itself (measured in DESIGN.md).
     """
-    result = Decoded(ticks_length)
     gc_was_enabled = gc.isenabled()
     gc.disable()
     try:
@@ -120,12 +133,10 @@ def decode_blocks(blocks: Iterable[tuple[bytes, int]], ticks_length: dict[str, i
             # fork: the workers start at once with everything imported.
             with multiprocessing.get_context("fork").Pool(WORKERS) as pool:
                 jobs = ((block, line_no, ticks_length) for block, line_no in blocks)
-                for decoded in pool.imap(_decode_job, jobs):
-                    result.merge(decoded)
+                yield from pool.imap(_decode_job, jobs)
         else:
             for block, line_no in blocks:
-                result.decode_block(block, line_no)
+                yield _decode_job((block, line_no, ticks_length))
     finally:
         if gc_was_enabled:
             gc.enable()
-    return result

@@ -8,8 +8,10 @@ lives in the modules this calls.
 from __future__ import annotations
 
 import argparse
+import asyncio
 import sys
 import time
+from collections import Counter
 from typing import Sequence
 
 import numpy as np
@@ -20,8 +22,9 @@ from receiver.errors import PodwatchError, UsageError
 from receiver.integrate import METHODS, wrap_angle
 from receiver.paths import PATHS
 from receiver.profile import Profile, load_profile
-from receiver.recompute import Tracker
-from receiver.recording import RecordingWriter, read_recording
+from receiver.recompute import Result, Tracker
+from receiver.recording import RecordingStream, RecordingWriter
+from receiver.replay import send_paced
 from receiver.simulate import FAULT_SYNTAX, parse_faults, simulate
 
 CSV_HEADER = (
@@ -68,81 +71,112 @@ def _load_profiles(paths: Sequence[str] | None) -> dict[str, Profile]:
     return profiles
 
 
+class _RobotTotals:
+    """What the one-line summary of a recomputed robot needs, gathered piece by piece."""
+
+    def __init__(self, robot: str, profile: Profile) -> None:
+        self.robot, self.profile = robot, profile
+        self.samples = 0
+        self.dropped: Counter = Counter()
+        self.last: tuple[float, float] | None = None
+        self.worst = 0.0
+
+    def add(self, result: Result) -> None:
+        self.samples += len(result.seq)
+        self.dropped.update(result.dropped)
+        pos, head = result.position_error, result.heading_error
+        has = np.flatnonzero(np.isfinite(pos))
+        if len(has):
+            self.last = (float(pos[has[-1]]), float(head[has[-1]]))
+            self.worst = max(self.worst, float(pos[has].max()))
+
+    def line(self) -> str:
+        unit = self.profile.distance_unit
+        text = f"{self.robot}: {self.samples} samples"
+        dropped = ", ".join(f"{k} {v}" for k, v in self.dropped.items() if v)
+        if dropped:
+            text += f" ({dropped} ignored)"
+        if self.last is None:
+            return text + "; the robot sent no pose to compare"
+        return (
+            f"{text}; disagreement at end {self.last[0]:.3f} {unit}, {np.degrees(self.last[1]):.2f} deg; "
+            f"worst {self.worst:.3f} {unit}"
+        )
+
+
+def _csv_columns(robot: str, result: Result) -> list:
+    """The `recompute` CSV columns of DESIGN.md for one piece of one robot."""
+    return [
+        robot.encode(),
+        (result.seq, 0),
+        (result.t, 6),
+        (result.pose[:, 0], 6),
+        (result.pose[:, 1], 6),
+        (wrap_angle(result.pose[:, 2]), 6),
+        (result.reported[:, 0], 6),
+        (result.reported[:, 1], 6),
+        (wrap_angle(result.reported[:, 2]), 6),
+        (result.position_error, 6),
+        (result.heading_error, 6),
+        (result.loop_s, 6),
+    ]
+
+
 def cmd_recompute(args: argparse.Namespace) -> int:
+    """Stream the recording block by block: decode, recompute, write rows.
+
+    Each robot's rows are in arrival order; with several robots their rows
+    interleave block by block.
+    """
     if args.method not in METHODS:
         raise UsageError(f"unknown method {args.method!r}, expected one of {', '.join(METHODS)}")
     cli_profiles = _load_profiles(args.profile)
     progress = ProgressLine(f"reading {args.recording}")
-    try:
-        data = read_recording(
-            args.recording, {n: len(p.wheels) for n, p in cli_profiles.items()}, progress=progress
-        )
-    finally:
-        progress.close()
-    for warning in data.warnings:
-        _warn(warning)
-    profiles = {**data.profiles, **cli_profiles}
-    missing = [robot for robot in data.robots if robot not in profiles]
-    for robot in missing:
-        _warn(f"robot {robot!r} has no profile (give one with --profile); its messages are not recomputed")
-    if len(missing) == len(data.robots):
-        raise UsageError(f"{args.recording}: no robot in it has a profile; give one with --profile")
+    trackers: dict[str, Tracker | None] = {}
+    totals: dict[str, _RobotTotals] = {}
     out = open(args.out, "wb") if args.out else sys.stdout.buffer
     try:
-        out.write(CSV_HEADER)
-        for robot, columns in data.robots.items():
-            if robot in missing:
-                continue
-            profile = profiles[robot]
-            result = Tracker(profile, args.method).feed(columns)
-            csvtable.write(
-                out,
-                [
-                    robot.encode(),
-                    (result.seq, 0),
-                    (result.t, 6),
-                    (result.pose[:, 0], 6),
-                    (result.pose[:, 1], 6),
-                    (wrap_angle(result.pose[:, 2]), 6),
-                    (result.reported[:, 0], 6),
-                    (result.reported[:, 1], 6),
-                    (wrap_angle(result.reported[:, 2]), 6),
-                    (result.position_error, 6),
-                    (result.heading_error, 6),
-                    (result.loop_s, 6),
-                ],
-            )
-            print(_summary(robot, profile, result), file=sys.stderr)
+        with RecordingStream(args.recording, {n: len(p.wheels) for n, p in cli_profiles.items()}, progress) as rec:
+            profiles = {**rec.profiles, **cli_profiles}
+            out.write(CSV_HEADER)
+            for robot, columns in rec:
+                if robot not in trackers:
+                    profile = profiles.get(robot)
+                    if profile is None:
+                        _warn(f"robot {robot!r} has no profile (give one with --profile); its messages are not recomputed")
+                    else:
+                        totals[robot] = _RobotTotals(robot, profile)
+                    trackers[robot] = Tracker(profile, args.method) if profile else None
+                tracker = trackers[robot]
+                if tracker is not None:
+                    result = tracker.feed(columns)
+                    csvtable.write(out, _csv_columns(robot, result))
+                    totals[robot].add(result)
     finally:
+        progress.close()
         if args.out:
             out.close()
         else:
             out.flush()
+    for warning in rec.warnings:
+        _warn(warning)
+    if not totals:
+        raise UsageError(f"{args.recording}: no robot in it has a profile; give one with --profile")
+    for robot_totals in totals.values():
+        print(robot_totals.line(), file=sys.stderr)
     return 0
-
-
-def _summary(robot: str, profile: Profile, result) -> str:
-    pos, head = result.position_error, result.heading_error
-    has = np.isfinite(pos)
-    dropped = ", ".join(f"{k} {v}" for k, v in result.dropped.items() if v)
-    text = f"{robot}: {len(result.seq)} samples"
-    if dropped:
-        text += f" ({dropped} ignored)"
-    if has.any():
-        last = np.flatnonzero(has)[-1]
-        text += (
-            f"; disagreement at end {pos[last]:.3f} {profile.distance_unit}, "
-            f"{np.degrees(head[last]):.2f} deg; worst {np.nanmax(pos):.3f} {profile.distance_unit}"
-        )
-    else:
-        text += "; the robot sent no pose to compare"
-    return text
 
 
 def cmd_simulate(args: argparse.Namespace) -> int:
     profile = load_profile(args.profile)
     faults = parse_faults(args.fault or (), profile)
     run = simulate(profile, args.path, args.rate, args.duration, args.seed, faults, args.near_wrap, args.imu)
+    if args.to:
+        # Streams in real time, paced by each message's simulated arrival.
+        print(f"{profile.name}: {run.path}, streaming {len(run.samples)} messages to {args.to} ...", file=sys.stderr)
+        sent = asyncio.run(send_paced(run.samples, np.asarray(run.arrival_s), args.to, token=args.token))
+        print(f"{profile.name}: sent {sent} messages to {args.to}", file=sys.stderr)
+        return 0
     # The receiver's wall clock is synthetic: now, plus each message's arrival time.
     with RecordingWriter(args.out, [profile]) as writer:
         writer.write(run.stamp_rx(time.time()))
@@ -180,6 +214,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--imu", action="store_true", help="send IMU headings (always sent when the profile uses the IMU)")
     destination = p.add_mutually_exclusive_group(required=True)
     destination.add_argument("--out", metavar="FILE", help="write a recording (.jsonl, or .jsonl.gz for gzip)")
+    destination.add_argument(
+        "--to", metavar="URL", help="stream in real time instead: udp://HOST:PORT, ws://HOST:PORT or mqtt://HOST:PORT"
+    )
+    p.add_argument("--token", metavar="T", help="token for a ws:// receiver that requires one")
     p.set_defaults(run=cmd_simulate)
 
     add_live_commands(sub)

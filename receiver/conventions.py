@@ -33,6 +33,13 @@ def reported_to_rep103(pose: np.ndarray, reported: Reported) -> np.ndarray:
     return np.stack([pose[..., 0], y_sign * pose[..., 1], zero + k * scale * pose[..., 2]], axis=-1)
 
 
+def reported_to_rep103_one(pose: tuple[float, float, float], reported: Reported) -> tuple[float, float, float]:
+    """``reported_to_rep103`` for one pose, in plain floats."""
+    scale, k, zero = _heading_terms(reported)
+    y_sign = 1.0 if reported.y_axis == "left" else -1.0
+    return pose[0], y_sign * pose[1], zero + k * scale * pose[2]
+
+
 def rep103_to_reported(pose: np.ndarray, reported: Reported) -> np.ndarray:
     """The inverse: what a robot with these conventions would report."""
     pose = np.asarray(pose, dtype=float)
@@ -50,3 +57,10 @@ def imu_heading_change(imu_now: np.ndarray, imu_before: np.ndarray, reported: Re
     scale, k, _ = _heading_terms(reported)
     change = k * scale * (np.asarray(imu_now, dtype=float) - np.asarray(imu_before, dtype=float))
     return np.mod(change + np.pi, 2.0 * np.pi) - np.pi
+
+
+def imu_heading_change_one(imu_now: float, imu_before: float, reported: Reported) -> float:
+    """``imu_heading_change`` for one pair of readings, in plain floats."""
+    scale, k, _ = _heading_terms(reported)
+    change = k * scale * (imu_now - imu_before)
+    return (change + math.pi) % (2.0 * math.pi) - math.pi

@@ -97,6 +97,15 @@ def classify(
     return kinds
 
 
+def count_change_one(now: int, before: int) -> int:
+    """``count_change`` for one counter, on Python ints (the one-sample path)."""
+    diff = now - before
+    half = COUNT_MODULUS // 2
+    if diff >= half or diff < -half:
+        diff = (diff + half) % COUNT_MODULUS - half
+    return diff
+
+
 def count_change(now: np.ndarray, before: np.ndarray) -> np.ndarray:
     """Counter change now - before, unwrapped across the signed 32-bit rollover."""
     diff = np.asarray(now, dtype=np.int64) - np.asarray(before, dtype=np.int64)

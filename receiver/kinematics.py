@@ -59,6 +59,12 @@ class Kinematics:
         self._solve = np.linalg.pinv(self.matrix)
         # With the IMU giving dth: A[:, :2] [dx dy] = s - A[:, 2] dth.
         self._solve_xy = np.linalg.pinv(self.matrix[:, :2])
+        # Plain-float copies for body_delta_one: numpy's per-call overhead
+        # (microseconds) dwarfs the arithmetic of one live sample.
+        self._travel_per_count = self.travel_per_count.tolist()
+        self._solve_rows = self._solve.tolist()
+        self._solve_xy_rows = self._solve_xy.tolist()
+        self._turn_column = self.matrix[:, 2].tolist()
 
     def travel(self, dcounts: np.ndarray) -> np.ndarray:
         """Encoder count changes (..., n) -> signed wheel travel (..., n)."""
@@ -79,6 +85,16 @@ class Kinematics:
             xy = (travel - dth_safe[..., None] * self.matrix[:, 2]) @ self._solve_xy.T
             delta = np.where(use[..., None], np.concatenate([xy, dth_safe[..., None]], axis=-1), delta)
         return delta
+
+    def body_delta_one(self, dcounts: Sequence[int], dth_imu: float | None = None) -> tuple[float, float, float]:
+        """``body_delta(travel(dcounts), dth_imu)`` for one sample, in plain floats."""
+        travel = [d * k for d, k in zip(dcounts, self._travel_per_count)]
+        if dth_imu is not None and math.isfinite(dth_imu):
+            rest = [s - dth_imu * m for s, m in zip(travel, self._turn_column)]
+            dx, dy = (sum([a * s for a, s in zip(row, rest)]) for row in self._solve_xy_rows)
+            return dx, dy, dth_imu
+        dx, dy, dth = (sum([a * s for a, s in zip(row, travel)]) for row in self._solve_rows)
+        return dx, dy, dth
 
     def wheel_travel(self, body_delta: np.ndarray) -> np.ndarray:
         """The forward model: body displacement (..., 3) -> wheel travel (..., n)."""

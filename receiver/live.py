@@ -164,8 +164,16 @@ def summary_lines(hub: Hub) -> list[str]:
     return lines
 
 
-async def serve(config: ServeConfig, say: Callable[[str], None] = print) -> list[str]:
-    """Run until SIGINT or SIGTERM; returns the summary lines."""
+async def serve(
+    config: ServeConfig,
+    say: Callable[[str], None] = print,
+    on_start: Callable[[LiveReceiver], None] | None = None,
+    until: float | None = None,
+) -> list[str]:
+    """Run until SIGINT or SIGTERM (or ``until`` seconds); returns the summary lines.
+
+    ``on_start`` runs once the receiver listens (the dashboard starts there).
+    """
     receiver = LiveReceiver(config, say)
     stop = asyncio.Event()
     loop = asyncio.get_running_loop()
@@ -173,7 +181,12 @@ async def serve(config: ServeConfig, say: Callable[[str], None] = print) -> list
         loop.add_signal_handler(sig, stop.set)
     try:
         await receiver.start()
-        await stop.wait()
+        if on_start is not None:
+            on_start(receiver)
+        try:
+            await asyncio.wait_for(stop.wait(), until)
+        except asyncio.TimeoutError:
+            pass
     finally:
         for sig in (signal.SIGINT, signal.SIGTERM):
             loop.remove_signal_handler(sig)

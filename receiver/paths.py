@@ -16,7 +16,7 @@ import numpy as np
 from receiver.errors import UsageError
 
 FIELD_SIZE_IN = 144.0  # common practice: a competition field is 12 ft square
-PATHS = ("square", "figure-eight", "spin", "strafe", "wander", "guided")
+PATHS = ("square", "figure-eight", "spin", "strafe", "wander", "guided", "push-forward", "push-left")
 
 # First zero of the Bessel function J0 (Abramowitz and Stegun, table 9.5). A
 # heading that swings by this amplitude either side of its centre, at
@@ -160,6 +160,10 @@ def make_path(name: str, rng: np.random.Generator) -> Motion:
     if name == "strafe":
         steps = [("left", 36.0, 24.0), ("pause", 0.5, 0.0), ("left", -36.0, 24.0), ("pause", 0.5, 0.0)]
         return _moves((0.0, -18.0, 0.0), steps, repeat=True)
+    if name in ("push-forward", "push-left"):
+        # The push test: one straight 48 in push from rest to rest, forward or leftward.
+        move = "forward" if name == "push-forward" else "left"
+        return _moves((0.0, 0.0, 0.0), [("pause", 0.5, 0.0), (move, 48.0, 12.0), ("pause", 1.0, 0.0)], repeat=False)
     if name == "guided":
         # The hand-push check: a person pushes the robot 18 in forward, 18 in
         # left, then turns it 120 degrees counter-clockwise, resting about 1 s between.

@@ -18,7 +18,7 @@ from collections import Counter
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import BinaryIO, Callable, Iterable, Sequence
+from typing import BinaryIO, Callable, Iterable, Iterator, Sequence
 
 import msgspec
 
@@ -169,46 +169,96 @@ class _Lines:
         self.tail = pending
 
 
-def read_recording(
-    path: str | Path, ticks_length: dict[str, int] | None = None, progress: Progress | None = None
-) -> RecordingData:
-    """Read a whole recording (plain or gzip, with or without header).
+class RecordingStream:
+    """A recording read block by block: (robot, columns) pieces in arrival order.
 
-    ``ticks_length`` gives the expected number of counts per robot (from the
-    profiles in use); messages of another length are skipped and counted.
-    Large files are decoded by two worker processes (bulk.py).
+    ``profiles`` and ``created`` are known once the stream is open;
+    ``warnings`` and ``skipped`` are complete once it has been iterated to
+    the end, which raises RecordingError if nothing valid was found. Each
+    robot's pieces come in order, so a recompute can feed them as they come
+    and memory stays bounded by the block size.
     """
-    path = str(path)
-    stream, raw = _open(path)
-    warnings: list[str] = []
-    with stream, raw:
-        lines = _Lines(stream, raw, path, progress)
-        blocks = iter(lines)
-        first = next(blocks, None)
-        profiles = lines.header[1] if lines.header else {}
-        lengths = {name: len(p.wheels) for name, p in profiles.items()}
+
+    def __init__(
+        self, path: str | Path, ticks_length: dict[str, int] | None = None, progress: Progress | None = None
+    ) -> None:
+        self.path = str(path)
+        self._stream, self._raw = _open(self.path)
+        self._lines = _Lines(self._stream, self._raw, self.path, progress)
+        self._blocks = iter(self._lines)
+        try:
+            self._first = next(self._blocks, None)
+        except BaseException:
+            self.close()
+            raise
+        header = self._lines.header
+        self.created = header[0] if header else None
+        self.profiles: dict[str, Profile] = header[1] if header else {}
+        lengths = {name: len(p.wheels) for name, p in self.profiles.items()}
         lengths.update(ticks_length or {})
+        self._tally = bulk.Tally(lengths)
         # Worker processes are forked: only from a process with no other threads.
-        parallel = lines.total >= bulk.PARALLEL_FROM_BYTES and threading.active_count() == 1
-        decoded = bulk.decode_blocks(itertools.chain([first] if first else [], blocks), lengths, parallel)
+        self._parallel = self._lines.total >= bulk.PARALLEL_FROM_BYTES and threading.active_count() == 1
+        self.warnings: list[str] = []
+
+    @property
+    def skipped(self) -> Counter:
+        return self._tally.skipped
+
+    def __iter__(self) -> Iterator[tuple[str, Columns]]:
+        blocks = itertools.chain([self._first] if self._first else [], self._blocks)
+        found = False
+        for decoded in bulk.decode_blocks(blocks, self._tally.ticks_length, self._parallel):
+            for piece in self._tally.accept(decoded):
+                found = True
+                yield piece
+        lines = self._lines
         if lines.tail.strip():
             result = decode_message(lines.tail)
             if isinstance(result, Sample):
-                decoded.add([result])
+                tail = bulk.Decoded(self._tally.ticks_length)
+                tail.add([result])
+                for piece in self._tally.accept(tail):
+                    found = True
+                    yield piece
             else:
-                warnings.append(f"skipped a truncated last line ({len(lines.tail)} bytes): {result}")
+                self.warnings.append(f"skipped a truncated last line ({len(lines.tail)} bytes): {result}")
         if lines.cut is not None:
-            warnings.append("the compressed stream ends early (receiver killed mid-write?); read what was there")
-    if not lines.seen_any:
-        raise RecordingError(f"{path}: empty recording")
-    if decoded.skipped:
-        reasons = ", ".join(f"{reason} {count}" for reason, count in sorted(decoded.skipped.items()))
-        warnings.append(f"skipped {sum(decoded.skipped.values())} bad messages ({reasons}); first: {decoded.first_failure}")
-    robots = {robot: concat_columns(parts) for robot, parts in decoded.parts.items()}
-    if not robots:
-        raise RecordingError(f"{path}: no valid messages ({decoded.first_failure or 'nothing but blank lines'})")
-    created = lines.header[0] if lines.header else None
-    return RecordingData(path, created, profiles, robots, decoded.skipped, warnings)
+            self.warnings.append("the compressed stream ends early (receiver killed mid-write?); read what was there")
+        if not lines.seen_any:
+            raise RecordingError(f"{self.path}: empty recording")
+        tally = self._tally
+        if tally.skipped:
+            reasons = ", ".join(f"{reason} {count}" for reason, count in sorted(tally.skipped.items()))
+            self.warnings.append(f"skipped {sum(tally.skipped.values())} bad messages ({reasons}); first: {tally.first_failure}")
+        if not found:
+            raise RecordingError(f"{self.path}: no valid messages ({tally.first_failure or 'nothing but blank lines'})")
+
+    def close(self) -> None:
+        self._stream.close()
+        self._raw.close()
+
+    def __enter__(self) -> RecordingStream:
+        return self
+
+    def __exit__(self, *exc_info: object) -> None:
+        self.close()
+
+
+def read_recording(
+    path: str | Path, ticks_length: dict[str, int] | None = None, progress: Progress | None = None
+) -> RecordingData:
+    """Read a whole recording (plain or gzip, with or without header) into columns per robot.
+
+    ``ticks_length`` gives the expected number of counts per robot (from the
+    profiles in use); messages of another length are skipped and counted.
+    """
+    with RecordingStream(path, ticks_length, progress) as stream:
+        parts: dict[str, list[Columns]] = {}
+        for robot, piece in stream:
+            parts.setdefault(robot, []).append(piece)
+    robots = {robot: concat_columns(pieces) for robot, pieces in parts.items()}
+    return RecordingData(stream.path, stream.created, stream.profiles, robots, stream.skipped, stream.warnings)
 
 
 # Buffered lines go to the file object once they pass this size, so that a

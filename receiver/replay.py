@@ -111,6 +111,18 @@ async def replay_to(
 ) -> int:
     """Send a recording's messages to a receiver at ``url``; returns messages sent."""
     samples, stamps = recorded_samples(data)
+    return await send_paced(samples, stamps, url, speed, token, prefix)
+
+
+async def send_paced(
+    samples: list[Sample],
+    stamps: np.ndarray,
+    url: str,
+    speed: float = 1.0,
+    token: str | None = None,
+    prefix: str | None = None,
+) -> int:
+    """Send messages to ``url`` paced by their timestamps (s) over ``speed``; returns messages sent."""
     loop = asyncio.get_running_loop()
     options = {"token": token} if prefix is None else {"token": token, "prefix": prefix}
     async with open_sender(url, **options) as sender:

@@ -16,7 +16,6 @@ from enum import Enum
 from typing import Callable, Protocol
 
 import numpy as np
-from scipy.signal import lfilter
 
 from receiver.counts import ACCEPTED, Kind, classify
 from receiver.profile import Profile
@@ -111,6 +110,7 @@ class RobotSnapshot:
     reported: tuple[float, float, float] | None
     position_error: float
     heading_error: float
+    last_rx: float = float("nan")  # receiver clock of the latest message, s
 
 
 @dataclass(frozen=True)
@@ -139,6 +139,7 @@ _RING_FIELDS = {
     "position_error": (float, None),
     "heading_error": (float, None),
     "loop": (float, None),
+    "kind": (np.int8, None),  # counts.Kind of each accepted row: the dashboard marks anchors
 }
 
 
@@ -155,7 +156,7 @@ class Session:
         self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows)
         self._last: tuple[int, float] | None = None  # last accepted (seq, t)
         self._last_rx = np.nan
-        self._jitter_state = None
+        self._jitter_s: float | None = None
 
     def move(self, event: LinkEvent) -> None:
         self.state = TRANSITIONS.get((self.state, event), self.state)
@@ -191,7 +192,8 @@ class Session:
             return result
         self._count_link(kinds, seq, t, rx)
         self.ring.append(
-            rx=rx, seq=seq, t=t, pose=pose, reported=reported, position_error=pos_err, heading_error=head_err, loop=loop
+            rx=rx, seq=seq, t=t, pose=pose, reported=reported, position_error=pos_err, heading_error=head_err, loop=loop,
+            kind=kinds,
         )
         return result
 
@@ -207,10 +209,12 @@ class Session:
         # Transit-time differences D (RFC 3550 6.4.1) over consecutive steps.
         d = np.abs((rx - prev_rx) - (t - prev_t))[step & np.isfinite(prev_rx)]
         if len(d):
-            if self._jitter_state is None:
-                self._jitter_state = np.array([(1.0 - _JITTER_GAIN) * d[0]])
-            out, self._jitter_state = lfilter([_JITTER_GAIN], [1.0, -(1.0 - _JITTER_GAIN)], d, zi=self._jitter_state)
-            st.jitter_s = float(out[-1])
+            # J += (|D| - J) / 16, RFC 3550 6.4.1; a plain loop, as live pieces are short.
+            values = d.tolist()
+            jitter = values.pop(0) if self._jitter_s is None else self._jitter_s
+            for value in values:
+                jitter += _JITTER_GAIN * (value - jitter)
+            self._jitter_s = st.jitter_s = jitter
         self._last = (int(seq[-1]), float(t[-1]))
         self._last_rx = float(rx[-1])
 
@@ -254,6 +258,7 @@ class Session:
             reported=reported,
             position_error=pos_err,
             heading_error=head_err,
+            last_rx=st.last_rx,
         )
 
 
@@ -380,10 +385,13 @@ class Hub:
         with self._state_lock:
             return {robot: s.snapshot(now) for robot, s in self.sessions.items()}
 
-    def history(self, robot: str) -> dict[str, np.ndarray]:
-        """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``)."""
+    def history(self, robot: str, since_rx: float | None = None) -> dict[str, np.ndarray]:
+        """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``);
+        with ``since_rx`` only the rows whose rx is later than it."""
         with self._state_lock:
-            return {name: column.copy() for name, column in self.sessions[robot].ring.view().items()}
+            rows = self.sessions[robot].ring.view()
+            first = 0 if since_rx is None else int(np.searchsorted(rows["rx"], since_rx, side="right"))
+            return {name: column[first:].copy() for name, column in rows.items()}
 
 
 def _pose_update(robot: str, result: Result) -> PoseUpdate:

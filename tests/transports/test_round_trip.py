@@ -4,7 +4,6 @@ poses the live receiver computed."""
 
 from __future__ import annotations
 
-import asyncio
 import csv
 import io
 
@@ -14,10 +13,9 @@ import pytest
 from receiver.cli import main
 from receiver.integrate import wrap_angle
 from receiver.live import ServeConfig
-from receiver.protocol import encode
 from receiver.recording import read_recording
 from receiver.simulate import simulate
-from receiver.transports.send import open_sender
+from tests.conftest import FIXTURES
 from tests.transports.harness import handled, live_receiver, wait_until
 
 
@@ -41,12 +39,10 @@ def test_live_poses_equal_recompute_of_the_recording(transport, practice_profile
             wait_until(receiver.mqtt.connected.is_set, "the MQTT subscription")
             url = config.mqtt
 
-        async def send():
-            async with open_sender(url) as sender:
-                for sample in run.samples:
-                    await sender.send(encode(sample), sample.robot)
-
-        asyncio.run(send())
+        # The simulated robot streams in real time through `podwatch simulate --to`.
+        profile_path = str(FIXTURES / "practice-bot.toml")
+        args = ["--rate", "100", "--duration", "4", "--seed", "11", "--near-wrap", "--to", url]
+        assert main(["simulate", "--profile", profile_path, *args]) == 0
         wait_until(lambda: handled(receiver) == len(run.samples), "every sample")
     live = receiver.hub.history("practice-bot")
 
