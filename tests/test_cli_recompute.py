@@ -162,3 +162,28 @@ def test_csv_values_equal_the_engine(tmp_path, capsys, practice_profile):
     got = np.array([[float(r["x"]), float(r["y"]), float(r["position_error"])] for r in rows])
     want = np.column_stack([result.pose[:, :2], result.position_error])
     np.testing.assert_allclose(got, want, atol=1e-6)
+
+
+class _Terminal(io.StringIO):
+    def isatty(self):
+        return True
+
+
+def test_progress_shows_on_a_terminal_only(tmp_path, monkeypatch, practice_profile):
+    from receiver import cli, recording
+
+    rec = write_recording(tmp_path / "run.jsonl", constant_twist_messages(practice_profile, seconds=40.0), [practice_profile])
+    monkeypatch.setattr(recording, "_CHUNK_BYTES", 50_000)  # several blocks, several updates
+    terminal = _Terminal()
+    progress = cli.ProgressLine("reading", stream=terminal, min_interval_s=0.0)
+    with recording.RecordingStream(rec, progress=progress) as stream:
+        assert sum(len(piece) for _, piece in stream) == 2001
+    progress.close()
+    shown = terminal.getvalue()
+    assert "reading: " in shown and "100.0% of 0.4 MB" in shown
+    assert shown.endswith("\r\033[K")  # the line is cleared at the end
+    piped = io.StringIO()
+    quiet = cli.ProgressLine("reading", stream=piped, min_interval_s=0.0)
+    quiet(10, 100)
+    quiet.close()
+    assert piped.getvalue() == ""

@@ -1,0 +1,1 @@
+"""Robot-side senders: small, dependency-free files that robot code copies in."""

@@ -1,0 +1,93 @@
+"""Send a robot's raw tracking-wheel counts and its own pose to podwatch over UDP.
+
+A single file with the Python standard library only, for Python-based robots
+and for scripting: copy it next to your robot code. Create one sender at
+start-up and call ``send`` once per loop, right after reading the encoders
+and updating your odometry:
+
+    from podwatch_sender import OdometrySender
+
+    sender = OdometrySender("practice-bot")            # broadcast on port 47474
+    while running:
+        ...
+        sender.send([left, right, back], pose=(x, y, heading))
+
+Counts go in the order of the profile's [[wheel]] tables, the pose in the
+units and conventions its [reported] table declares. ``send`` never blocks
+the loop: the socket is non-blocking, a datagram the network cannot take
+right now is dropped and counted, and a rate cap keeps a fast loop from
+flooding the network (podwatch bridges skipped samples from the cumulative
+counts).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+import socket
+import time
+
+DEFAULT_PORT = 47474
+DEFAULT_MAX_RATE_HZ = 200.0
+_ROBOT = re.compile(r"[A-Za-z0-9_.\-]{1,32}\Z")
+
+
+class OdometrySender:
+    def __init__(
+        self,
+        robot: str,
+        host: str = "255.255.255.255",
+        port: int = DEFAULT_PORT,
+        max_rate_hz: float = DEFAULT_MAX_RATE_HZ,
+    ) -> None:
+        if not _ROBOT.match(robot):
+            raise ValueError(f"robot id must be 1-32 of A-Z a-z 0-9 _ . -, got {robot!r}")
+        if not max_rate_hz > 0:
+            raise ValueError(f"max_rate_hz must be positive, got {max_rate_hz!r}")
+        self.robot = robot
+        self.address = (host, port)
+        self.min_interval_s = 1.0 / max_rate_hz
+        self.sock = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
+        self.sock.setsockopt(socket.SOL_SOCKET, socket.SO_BROADCAST, 1)
+        self.sock.setblocking(False)
+        self.seq = 0
+        self.sent = 0
+        self.dropped = 0
+        self._last_send: float | None = None
+        self._last_loop: float | None = None
+
+    def send(self, ticks, pose=None, imu: float | None = None, reset: bool = False) -> bool:
+        """Queue one sample; True when it went out, False when skipped or dropped."""
+        now = time.monotonic()
+        loop = None if self._last_loop is None else now - self._last_loop
+        self._last_loop = now
+        if not reset and self._last_send is not None and now - self._last_send < self.min_interval_s:
+            return False
+        self._last_send = now
+        message = {"v": 1, "robot": self.robot, "seq": self.seq, "t": now, "ticks": [int(c) for c in ticks]}
+        if pose is not None and all(math.isfinite(v) for v in pose):
+            message["pose"] = [float(v) for v in pose]
+        if imu is not None and math.isfinite(imu):
+            message["imu"] = float(imu)
+        if loop is not None:
+            message["loop"] = loop
+        if reset:
+            message["reset"] = True
+        self.seq = (self.seq + 1) % 2**32  # wraps at 2^32, as the protocol says
+        try:
+            self.sock.sendto(json.dumps(message, separators=(",", ":")).encode(), self.address)
+        except OSError:  # buffer full or no network right now: never stop the robot
+            self.dropped += 1
+            return False
+        self.sent += 1
+        return True
+
+    def close(self) -> None:
+        self.sock.close()
+
+    def __enter__(self) -> OdometrySender:
+        return self
+
+    def __exit__(self, *exc_info) -> None:
+        self.close()
