@@ -17,6 +17,7 @@ from typing import Sequence
 import numpy as np
 
 from receiver import __version__, csvtable
+from receiver.cli_diagnose import add_check_commands
 from receiver.cli_live import add_live_commands
 from receiver.errors import PodwatchError, UsageError
 from receiver.integrate import METHODS, wrap_angle
@@ -220,6 +221,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--token", metavar="T", help="token for a ws:// receiver that requires one")
     p.set_defaults(run=cmd_simulate)
 
+    add_check_commands(sub)
     add_live_commands(sub)
     return parser
 

@@ -73,5 +73,5 @@ def test_a_second_receiver_watches_the_same_robots(practice_profile, mosquitto, 
     pose_a, pose_b = a.hub.history("practice-bot")["pose"], b.hub.history("practice-bot")["pose"]
     np.testing.assert_allclose(pose_b, pose_a, atol=1e-9, rtol=0)
     # the pose topic carries A's latest recompute and its disagreement
-    assert poses["practice-bot"].pose == tuple(pose_a[-1])
+    np.testing.assert_allclose(poses["practice-bot"].pose, pose_a[-1], atol=1e-9, rtol=0)
     assert np.isfinite(poses["practice-bot"].position_error)
