@@ -10,11 +10,14 @@ from __future__ import annotations
 import argparse
 import asyncio
 import logging
+import signal
 import sys
+import threading
 import time
 from pathlib import Path
 
 from receiver.errors import UsageError
+from receiver.paths import PATHS
 from receiver.live import ServeConfig, default_recording_path, parse_host_port, serve, summary_lines
 from receiver.profile import Profile, load_profile
 from receiver.recording import read_recording
@@ -22,6 +25,9 @@ from receiver.replay import replay_into_hub, replay_to
 from receiver.session import Hub
 from receiver.transports.mqtt import DEFAULT_PREFIX
 from receiver.transports.udp import DEFAULT_UDP_HOST, DEFAULT_UDP_PORT
+
+# The dashboard (Dash, Plotly) is imported only by the commands that serve it,
+# so that the offline commands start quickly.
 
 
 def _profiles(paths: list[str] | None) -> dict[str, Profile]:
@@ -37,8 +43,10 @@ def cmd_serve(args: argparse.Namespace) -> int:
     udp = args.udp
     if udp is None and args.ws is None and args.mqtt is None:
         udp = f"{DEFAULT_UDP_HOST}:{DEFAULT_UDP_PORT}"
+    profiles = _profiles(args.profile)
+    page = _Page(args, profiles)
     config = ServeConfig(
-        profiles=_profiles(args.profile),
+        profiles=profiles,
         udp=parse_host_port(udp, DEFAULT_UDP_HOST) if udp else None,
         ws=parse_host_port(args.ws, "127.0.0.1") if args.ws else None,
         mqtt=args.mqtt,
@@ -49,7 +57,90 @@ def cmd_serve(args: argparse.Namespace) -> int:
     )
     if not config.profiles:
         _say("no --profile given: robots are shown and recorded but not recomputed")
-    for line in asyncio.run(serve(config, _say)):
+    try:
+        lines = asyncio.run(serve(config, _say, on_start=None if args.no_dashboard else page.start_live))
+    finally:
+        page.stop()
+    for line in lines:
+        _say(line)
+    return 0
+
+
+class _Page:
+    """The dashboard of one command run, started once the receiver listens."""
+
+    def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile]) -> None:
+        from dashboard.settings import Settings, parse_length
+
+        self.args = args
+        self.profiles = profiles
+        self.server = None
+        self.station = None
+        if args.dashboard:
+            parse_host_port(args.dashboard, "127.0.0.1")
+        if not args.loop_threshold > 0:
+            raise UsageError(f"--loop-threshold must be positive, got {args.loop_threshold}")
+        # Checked before anything starts, so that a typo stops the command at once.
+        self.settings = Settings(
+            field_size_m=parse_length(args.field),
+            footprint_m=parse_length(args.footprint),
+            loop_threshold_s=args.loop_threshold / 1000.0,
+        )
+
+    def start_live(self, receiver) -> None:
+        from dashboard.server import start_dashboard
+        from dashboard.sources import LiveSource, Station
+
+        self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles)
+        self.server = start_dashboard(self.station, self.settings, self.args.dashboard, _say)
+
+    def start_replay(self, source) -> None:
+        from dashboard.server import start_dashboard
+        from dashboard.sources import Station
+
+        self.station = Station(replay=source, profiles=self.profiles)
+        self.server = start_dashboard(self.station, self.settings, self.args.dashboard, _say)
+
+    def stop(self) -> None:
+        if self.server is not None:
+            self.server.stop()
+        if self.station is not None:
+            self.station.close()
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    from receiver.demo import DEMO_FAULTS, SimulatedRobot, demo_profile
+    from receiver.simulate import parse_faults
+
+    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
+    if args.duration is not None and not args.duration > 0:
+        raise UsageError(f"--duration must be positive, got {args.duration}")
+    profile = demo_profile()
+    faults = parse_faults(args.fault if args.fault is not None else DEMO_FAULTS, profile)
+    config = ServeConfig(
+        profiles={profile.name: profile},
+        udp=parse_host_port(args.udp, "127.0.0.1"),
+        record=Path(args.record) if args.record else None,
+    )
+    page = _Page(args, config.profiles)
+    robots: list[SimulatedRobot] = []
+
+    def start(receiver) -> None:
+        page.start_live(receiver)
+        host, port = receiver.udp.address
+        robot = SimulatedRobot(profile, (host, port), args.path, args.rate, args.seed, faults)
+        robot.start()
+        robots.append(robot)
+        mistakes = ", ".join(args.fault if args.fault is not None else DEMO_FAULTS) or "none"
+        _say(f"simulated {profile.name} driving {args.path} at {args.rate:g} Hz, mistakes: {mistakes}")
+
+    try:
+        lines = asyncio.run(serve(config, _say, on_start=start, until=args.duration))
+    finally:
+        for robot in robots:
+            robot.stop()
+        page.stop()
+    for line in lines:
         _say(line)
     return 0
 
@@ -65,6 +156,8 @@ def cmd_replay(args: argparse.Namespace) -> int:
         sent = asyncio.run(replay_to(data, args.to, args.speed, token=args.token, prefix=args.prefix))
         _say(f"sent {sent} messages to {args.to}")
         return 0
+    if args.dashboard:
+        return _replay_on_page(args, data, cli_profiles)
     hub = Hub({**data.profiles, **cli_profiles})
     started = time.monotonic()
     count = replay_into_hub(data, hub, args.speed)
@@ -72,6 +165,47 @@ def cmd_replay(args: argparse.Namespace) -> int:
     for line in summary_lines(hub):
         _say(line)
     return 0
+
+
+def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]) -> int:
+    """Replay on the dashboard, playing at --speed, until Ctrl-C."""
+    from dashboard.sources import REPLAY_SPEEDS, ReplaySource
+
+    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
+    source = ReplaySource(data, profiles)
+    source.set_speed(args.speed if args.speed > 0 else max(REPLAY_SPEEDS))
+    source.start()
+    page = _Page(args, profiles)
+    try:
+        page.start_replay(source)
+        source.play()
+        _say(f"replaying {args.recording} ({source.duration_s:.1f} s) on the dashboard; Ctrl-C to stop")
+        stop = threading.Event()
+        signal.signal(signal.SIGTERM, lambda *_: stop.set())
+        try:
+            while not stop.wait(0.5):
+                pass
+        except KeyboardInterrupt:
+            pass
+    finally:
+        page.stop()
+    return 0
+
+
+def _dashboard_options(p: argparse.ArgumentParser, optional: bool) -> None:
+    where = p.add_mutually_exclusive_group() if optional else p
+    where.add_argument(
+        "--dashboard", metavar="HOST:PORT",
+        help="serve the page here (default 127.0.0.1:47475; an address other than loopback is logged as a warning)",
+    )
+    if optional:
+        where.add_argument("--no-dashboard", action="store_true", help="run headless, without the page")
+    p.add_argument("--field", default="144in", metavar="LENGTH",
+                   help="side of the square field on the track map, e.g. 144in or 3.66m (default 144in)")
+    p.add_argument("--footprint", default="18in", metavar="LENGTH",
+                   help="side of the robot's square footprint on the track map (default 18in)")
+    p.add_argument("--loop-threshold", type=float, default=50.0, metavar="MS",
+                   help="loops longer than this are highlighted (default 50)")
 
 
 def add_live_commands(sub: argparse._SubParsersAction) -> None:
@@ -88,7 +222,7 @@ def add_live_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--prefix", default=DEFAULT_PREFIX, help=f"MQTT topic prefix (default {DEFAULT_PREFIX})")
     p.add_argument("--token", metavar="T", help="WebSocket clients must send this token (?token= or header)")
     p.add_argument("--record", metavar="FILE", help="recording file (default recordings/podwatch-DATE-TIME.jsonl)")
-    p.add_argument("--no-dashboard", action="store_true", help="run headless (the only mode for now)")
+    _dashboard_options(p, optional=True)
     p.set_defaults(run=cmd_serve)
 
     p = sub.add_parser("replay", help="feed a recording through the live pipeline")
@@ -98,4 +232,18 @@ def add_live_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--to", metavar="URL", help="send over the network instead: udp://, ws:// or mqtt://HOST:PORT")
     p.add_argument("--token", metavar="T", help="token for a ws:// receiver that requires one")
     p.add_argument("--prefix", default=DEFAULT_PREFIX, help=f"MQTT topic prefix for mqtt:// (default {DEFAULT_PREFIX})")
+    _dashboard_options(p, optional=False)
     p.set_defaults(run=cmd_replay)
+
+    p = sub.add_parser("demo", help="receiver, dashboard and a simulated robot streaming over UDP on loopback")
+    p.add_argument("--udp", default="127.0.0.1:0", metavar="HOST:PORT",
+                   help="where the receiver listens and the robot sends (default a free port on 127.0.0.1)")
+    p.add_argument("--path", default="figure-eight", choices=PATHS, help="what the robot drives (default figure-eight)")
+    p.add_argument("--rate", type=float, default=100.0, metavar="HZ", help="robot loop rate (default 100)")
+    p.add_argument("--seed", type=int, default=1, metavar="N", help="random seed (default 1)")
+    p.add_argument("--fault", action="append", metavar="NAME",
+                   help="a mistake in the robot code, repeatable (default reversed:right)")
+    p.add_argument("--duration", type=float, metavar="S", help="stop after this many seconds (default: at Ctrl-C)")
+    p.add_argument("--record", metavar="FILE", help="also record the session to FILE")
+    _dashboard_options(p, optional=False)
+    p.set_defaults(run=cmd_demo)

@@ -33,13 +33,6 @@ def reported_to_rep103(pose: np.ndarray, reported: Reported) -> np.ndarray:
     return np.stack([pose[..., 0], y_sign * pose[..., 1], zero + k * scale * pose[..., 2]], axis=-1)
 
 
-def reported_to_rep103_one(pose: tuple[float, float, float], reported: Reported) -> tuple[float, float, float]:
-    """``reported_to_rep103`` for one pose, in plain floats."""
-    scale, k, zero = _heading_terms(reported)
-    y_sign = 1.0 if reported.y_axis == "left" else -1.0
-    return pose[0], y_sign * pose[1], zero + k * scale * pose[2]
-
-
 def rep103_to_reported(pose: np.ndarray, reported: Reported) -> np.ndarray:
     """The inverse: what a robot with these conventions would report."""
     pose = np.asarray(pose, dtype=float)
@@ -59,8 +52,19 @@ def imu_heading_change(imu_now: np.ndarray, imu_before: np.ndarray, reported: Re
     return np.mod(change + np.pi, 2.0 * np.pi) - np.pi
 
 
-def imu_heading_change_one(imu_now: float, imu_before: float, reported: Reported) -> float:
-    """``imu_heading_change`` for one pair of readings, in plain floats."""
-    scale, k, _ = _heading_terms(reported)
-    change = k * scale * (imu_now - imu_before)
-    return (change + math.pi) % (2.0 * math.pi) - math.pi
+class OneSample:
+    """``reported_to_rep103`` and ``imu_heading_change`` for one sample at a
+    time, in plain floats, with the robot's terms worked out once: the live
+    path, where numpy's cost per call would dwarf the arithmetic."""
+
+    def __init__(self, reported: Reported) -> None:
+        scale, k, self._zero = _heading_terms(reported)
+        self._turn = k * scale  # the same product the array functions form first
+        self._y_sign = 1.0 if reported.y_axis == "left" else -1.0
+
+    def to_rep103(self, pose: tuple[float, float, float]) -> tuple[float, float, float]:
+        return pose[0], self._y_sign * pose[1], self._zero + self._turn * pose[2]
+
+    def imu_heading_change(self, imu_now: float, imu_before: float) -> float:
+        # Python's % on floats is numpy's mod: the result takes the divisor's sign.
+        return (self._turn * (imu_now - imu_before) + math.pi) % (2.0 * math.pi) - math.pi

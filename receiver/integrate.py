@@ -85,21 +85,24 @@ def step(pose: np.ndarray, delta: np.ndarray, method: str = "arc") -> np.ndarray
     return np.stack([pose[..., 0] + mx, pose[..., 1] + my, pose[..., 2] + delta[..., 2]], axis=-1)
 
 
+_A0, _A1, _A2, _A3, _A4, _A5, _A6, _A7 = _A_SERIES
+_B0, _B1, _B2, _B3, _B4, _B5, _B6, _B7 = _B_SERIES
+
+
 def _arc_factors_one(t: float) -> tuple[float, float]:
-    """``_arc_factors`` for one float: the same series and switch point."""
+    """``_arc_factors`` for one float: the same series, switch point and
+    order of operations (``_horner`` unrolled), so the same roundings."""
     if abs(t) >= _SERIES_BELOW:
         return math.sin(t) / t, (1.0 - math.cos(t)) / t
     u = t * t
-    a = _A_SERIES[-1]
-    for c in _A_SERIES[-2::-1]:
-        a = a * u + c
-    b = _B_SERIES[-1]
-    for c in _B_SERIES[-2::-1]:
-        b = b * u + c
+    a = _A0 + u * (_A1 + u * (_A2 + u * (_A3 + u * (_A4 + u * (_A5 + u * (_A6 + u * _A7))))))
+    b = _B0 + u * (_B1 + u * (_B2 + u * (_B3 + u * (_B4 + u * (_B5 + u * (_B6 + u * _B7))))))
     return a, b * t
 
 
-def step_one(pose: tuple[float, float, float], delta: tuple[float, float, float], method: str = "arc") -> tuple[float, float, float]:
+def step_one(
+    pose: tuple[float, float, float], delta: tuple[float, float, float], method: str = "arc"
+) -> tuple[float, float, float]:
     """``step`` for one sample in plain floats: the live receiver's path.
 
     The same formulas as ``step`` without numpy, whose fixed cost per call

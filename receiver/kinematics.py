@@ -9,6 +9,7 @@ along angle phi_i measures s_i = cos(phi) (dx - y dth) + sin(phi) (dy + x dth)
 from __future__ import annotations
 
 import math
+from operator import mul
 from typing import TYPE_CHECKING, Sequence
 
 import numpy as np
@@ -59,12 +60,13 @@ class Kinematics:
         self._solve = np.linalg.pinv(self.matrix)
         # With the IMU giving dth: A[:, :2] [dx dy] = s - A[:, 2] dth.
         self._solve_xy = np.linalg.pinv(self.matrix[:, :2])
-        # Plain-float copies for body_delta_one: numpy's per-call overhead
-        # (microseconds) dwarfs the arithmetic of one live sample.
-        self._travel_per_count = self.travel_per_count.tolist()
-        self._solve_rows = self._solve.tolist()
-        self._solve_xy_rows = self._solve_xy.tolist()
-        self._turn_column = self.matrix[:, 2].tolist()
+        # Plain-float rows for body_delta_one, whose samples come one at a
+        # time: numpy's cost per call (microseconds) would dwarf the sums.
+        # Body delta per count of each wheel: the solve with travel folded in.
+        self._per_count = (self._solve * self.travel_per_count).tolist()
+        # With the IMU: (dx, dy) per count, and per radian of IMU heading change.
+        self._xy_per_count = (self._solve_xy * self.travel_per_count).tolist()
+        self._xy_per_turn = (self._solve_xy @ self.matrix[:, 2]).tolist()
 
     def travel(self, dcounts: np.ndarray) -> np.ndarray:
         """Encoder count changes (..., n) -> signed wheel travel (..., n)."""
@@ -87,14 +89,18 @@ class Kinematics:
         return delta
 
     def body_delta_one(self, dcounts: Sequence[int], dth_imu: float | None = None) -> tuple[float, float, float]:
-        """``body_delta(travel(dcounts), dth_imu)`` for one sample, in plain floats."""
-        travel = [d * k for d, k in zip(dcounts, self._travel_per_count)]
+        """``body_delta(travel(dcounts), dth_imu)`` for one sample, in plain
+        floats (equal to rounding: the travel per count is folded in first)."""
         if dth_imu is not None and math.isfinite(dth_imu):
-            rest = [s - dth_imu * m for s, m in zip(travel, self._turn_column)]
-            dx, dy = (sum([a * s for a, s in zip(row, rest)]) for row in self._solve_xy_rows)
-            return dx, dy, dth_imu
-        dx, dy, dth = (sum([a * s for a, s in zip(row, travel)]) for row in self._solve_rows)
-        return dx, dy, dth
+            x_row, y_row = self._xy_per_count
+            x_turn, y_turn = self._xy_per_turn
+            return (
+                sum(map(mul, x_row, dcounts)) - dth_imu * x_turn,
+                sum(map(mul, y_row, dcounts)) - dth_imu * y_turn,
+                dth_imu,
+            )
+        x_row, y_row, turn_row = self._per_count
+        return sum(map(mul, x_row, dcounts)), sum(map(mul, y_row, dcounts)), sum(map(mul, turn_row, dcounts))
 
     def wheel_travel(self, body_delta: np.ndarray) -> np.ndarray:
         """The forward model: body displacement (..., 3) -> wheel travel (..., n)."""

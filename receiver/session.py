@@ -9,6 +9,7 @@ module never opens a socket and never reads a clock: times are arguments.
 
 from __future__ import annotations
 
+import math
 import threading
 from collections import Counter, defaultdict
 from dataclasses import dataclass, field
@@ -17,7 +18,7 @@ from typing import Callable, Protocol
 
 import numpy as np
 
-from receiver.counts import ACCEPTED, Kind, classify
+from receiver.counts import ACCEPTED, SEQ_MODULUS, Kind, classify
 from receiver.profile import Profile
 from receiver.protocol import Failure, Reason, Sample
 from receiver.recompute import Columns, Result, Tracker, columns_from_samples, loop_periods
@@ -32,6 +33,11 @@ DEFAULT_QUIET_AFTER_S = 1.0
 DEFAULT_MAX_ROWS = 600_000
 # RFC 3550 section 6.4.1 interarrival jitter: J += (|D| - J) / 16.
 _JITTER_GAIN = 1.0 / 16.0
+# Up to this many samples of one robot in one ``process`` go one by one
+# through the tracker's plain-float path (about 10 us a sample here); more go
+# through numpy, whose fixed cost of about 0.5 ms a piece then pays off. Live
+# traffic brings a few samples per robot per call; a backlog or a replay, more.
+ONE_BY_ONE_UP_TO = 32
 
 
 class LinkState(Enum):
@@ -141,6 +147,12 @@ _RING_FIELDS = {
     "loop": (float, None),
     "kind": (np.int8, None),  # counts.Kind of each accepted row: the dashboard marks anchors
 }
+# Rows from the one-by-one path wait in a list, in this order, and reach the
+# ring buffer in bulk (at this many, or when read): writing a row into nine
+# numpy columns costs more than recomputing it.
+_ROW_NAMES = ("rx", "seq", "t", "pose", "reported", "position_error", "heading_error", "loop", "kind")
+_FLUSH_ROWS = 128
+assert set(_ROW_NAMES) == set(_RING_FIELDS)
 
 
 class Session:
@@ -157,12 +169,14 @@ class Session:
         self._last: tuple[int, float] | None = None  # last accepted (seq, t)
         self._last_rx = np.nan
         self._jitter_s: float | None = None
+        self._rows: list[tuple] = []  # accepted rows not yet in the ring, as _ROW_NAMES
 
     def move(self, event: LinkEvent) -> None:
         self.state = TRANSITIONS.get((self.state, event), self.state)
 
     def feed(self, cols: Columns) -> Result | None:
         """Take one batch in arrival order; returns the tracker's result, if any."""
+        self._flush_rows()
         st = self.stats
         st.messages += len(cols)
         if np.isnan(st.first_rx):
@@ -197,6 +211,65 @@ class Session:
         )
         return result
 
+    def feed_samples(self, samples: list[Sample]) -> PoseUpdate | None:
+        """Take one batch of decoded samples in arrival order; returns the
+        latest recomputed pose, if any. The same rows and statistics as
+        ``feed``: a few samples go one by one through ``Tracker.feed_one``.
+        """
+        if self.tracker is None or len(samples) > ONE_BY_ONE_UP_TO:
+            result = self.feed(columns_from_samples(samples, self.n_wheels))
+            return _pose_update(self.robot, result) if result is not None and len(result.seq) else None
+        st = self.stats
+        st.messages += len(samples)
+        if math.isnan(st.first_rx):
+            st.first_rx = _rx(samples[0])
+        st.last_rx = _rx(samples[-1])
+        if self.state is not LinkState.LIVE:  # LIVE stays LIVE on data; the table lookup costs a microsecond
+            self.move(LinkEvent.DATA)
+        feed_one, rows = self.tracker.feed_one, self._rows
+        latest = None
+        for sample in samples:
+            step = feed_one(sample)
+            if step.pose is None:
+                if step.kind is Kind.DUPLICATE:
+                    st.duplicates += 1
+                else:
+                    st.late += 1
+                continue
+            rx = _rx(sample)
+            self._count_one(step.kind, sample.seq, sample.t, rx)
+            rows.append((
+                rx, sample.seq, sample.t, step.pose, step.reported,
+                step.position_error, step.heading_error, step.loop_s, step.kind,
+            ))
+            latest = sample, step, rx
+        if len(rows) >= _FLUSH_ROWS:
+            self._flush_rows()
+        if latest is None:
+            return None
+        sample, step, rx = latest
+        reported = step.reported if all(map(math.isfinite, step.reported)) else None
+        return PoseUpdate(
+            self.robot, sample.seq, sample.t, rx, step.pose, reported, step.position_error, step.heading_error
+        )
+
+    def _count_one(self, kind: Kind, seq: int, t: float, rx: float) -> None:
+        """``_count_link`` for one accepted sample."""
+        st = self.stats
+        if kind is Kind.STEP:
+            last_seq, last_t = self._last
+            st.gaps += (seq - last_seq) % SEQ_MODULUS - 1
+            if math.isfinite(self._last_rx):
+                d = abs((rx - self._last_rx) - (t - last_t))
+                jitter = d if self._jitter_s is None else self._jitter_s + _JITTER_GAIN * (d - self._jitter_s)
+                self._jitter_s = st.jitter_s = jitter
+        elif kind is Kind.RESTART:
+            st.restarts += 1
+        elif kind is Kind.RESET:
+            st.resets += 1
+        self._last = (seq, t)
+        self._last_rx = rx
+
     def _count_link(self, kinds: np.ndarray, seq: np.ndarray, t: np.ndarray, rx: np.ndarray) -> None:
         st = self.stats
         prev_seq = np.concatenate([[self._last[0] if self._last else seq[0]], seq[:-1]])
@@ -218,9 +291,20 @@ class Session:
         self._last = (int(seq[-1]), float(t[-1]))
         self._last_rx = float(rx[-1])
 
+    def _flush_rows(self) -> None:
+        if self._rows:
+            columns = zip(_ROW_NAMES, zip(*self._rows))
+            self.ring.append(**{name: np.array(values, dtype=_RING_FIELDS[name][0]) for name, values in columns})
+            self._rows = []
+
+    def rows(self) -> dict[str, np.ndarray]:
+        """Every buffered row, oldest first (the ring buffer's view)."""
+        self._flush_rows()
+        return self.ring.view()
+
     def snapshot(self, now: float) -> RobotSnapshot:
         st = self.stats
-        rows = self.ring.view()
+        rows = self.rows()
         loop = rows["loop"][np.isfinite(rows["loop"])]
         rx = rows["rx"]
         rate = float(np.count_nonzero(rx > now - 1.0)) if len(rx) else 0.0
@@ -266,8 +350,9 @@ class Hub:
     """Every robot's session, behind one ingest queue.
 
     ``ingest`` (any thread) only queues a datagram's decode result, so a
-    receive loop spends microseconds on it; ``process`` (one thread, the
-    pump) applies the receiver-level rules, records, recomputes and tells
+    receive loop spends microseconds on it; ``process`` (the pump thread, or
+    the UDP loop right after it took a batch; a lock keeps them apart)
+    applies the receiver-level rules, records, recomputes and tells
     listeners. Robots with a profile get a session up front, in WAITING.
     """
 
@@ -307,11 +392,20 @@ class Hub:
         """Called after each ``process`` that accepted samples; it must be quick."""
         self._listeners.append(listener)
 
-    def ingest(self, samples: list[Sample], failures: list[Failure], rx: float, source: str) -> None:
-        """Queue one datagram's (or frame's) decode result; safe from any thread."""
+    def ingest(
+        self, samples: list[Sample], failures: list[Failure], rx: float, source: str, wake: bool = True
+    ) -> None:
+        """Queue one datagram's (or frame's) decode result; safe from any thread.
+
+        ``wake=False`` leaves the pump asleep: for a caller that runs
+        ``process`` itself right after (the UDP receive loop).
+        """
         with self._pending_lock:
             self._pending.append((samples, failures, rx, source))
-        self._has_pending.set()
+        # Set only when clear (``process`` clears it under the same lock, after
+        # taking the queue): Event.set is pure Python, as dear as a decode.
+        if wake and not self._has_pending.is_set():
+            self._has_pending.set()
 
     def wait(self, timeout: float) -> bool:
         """Block until something is queued (True) or the timeout passes (False)."""
@@ -338,10 +432,9 @@ class Hub:
                 self.recorder.flush(now)
             updates: dict[str, PoseUpdate] = {}
             for robot, group in groups.items():
-                session = self.sessions[robot]
-                result = session.feed(columns_from_samples(group, session.n_wheels))
-                if result is not None and len(result.seq):
-                    updates[robot] = _pose_update(robot, result)
+                update = self.sessions[robot].feed_samples(group)
+                if update is not None:
+                    updates[robot] = update
             self.tick(now)
             if accepted:
                 for listener in self._listeners:
@@ -389,9 +482,13 @@ class Hub:
         """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``);
         with ``since_rx`` only the rows whose rx is later than it."""
         with self._state_lock:
-            rows = self.sessions[robot].ring.view()
+            rows = self.sessions[robot].rows()
             first = 0 if since_rx is None else int(np.searchsorted(rows["rx"], since_rx, side="right"))
             return {name: column[first:].copy() for name, column in rows.items()}
+
+
+def _rx(sample: Sample) -> float:
+    return math.nan if sample.rx is None else sample.rx
 
 
 def _pose_update(robot: str, result: Result) -> PoseUpdate:

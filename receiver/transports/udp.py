@@ -1,14 +1,19 @@
-"""UDP ingest: one blocking receive loop in its own thread.
+"""UDP ingest: one receive loop in its own thread.
 
 Owns the UDP socket and nothing else: bytes in, ``protocol.decode``, then
-``Hub.ingest``. A plain blocking loop with a large kernel buffer is used
-instead of an asyncio datagram endpoint because it kept up with about twice
-the rate on these machines (DESIGN.md, "Measured"). It never parses JSON
-itself and never lets a bad datagram stop the loop.
+``Hub.ingest``. A plain loop with a large kernel buffer is used instead of an
+asyncio datagram endpoint because it kept up with about twice the rate on
+these machines (DESIGN.md, "Measured"). The loop takes whatever datagrams
+have arrived, then runs ``Hub.process`` on them itself: handing each datagram
+to the pump thread instead cost a GIL hand-over per datagram, and at 20,000
+datagrams/s the two threads spent more time waiting for each other than
+working (tests/bench/bench_udp.py). It never parses JSON itself and never
+lets a bad datagram stop the loop.
 """
 
 from __future__ import annotations
 
+import select
 import socket
 import sys
 import threading
@@ -23,11 +28,13 @@ DEFAULT_UDP_HOST = "0.0.0.0"  # all interfaces: a robot's broadcast must reach u
 # A big kernel buffer rides out pauses of the Python thread (GIL, GC); Linux
 # caps the request at net.core.rmem_max unless the process may exceed it.
 RECEIVE_BUFFER_BYTES = 16 * 1024 * 1024
-# The loop needs the GIL back after every datagram; with CPython's default
-# 5 ms switch interval a busy pump thread holds it so long that the kernel
-# buffer overflows. 0.2 ms held 20,000 datagrams/s with no loss where 5 ms
-# lost a third of 10,000/s (tests/bench/bench_udp.py, these machines).
+# Other threads (the pump for WebSocket and MQTT, the dashboard) must not keep
+# the loop from the GIL for CPython's default 5 ms: that alone would break the
+# 5 ms latency target. With 0.2 ms they hand it back promptly.
 GIL_SWITCH_INTERVAL_S = 0.0002
+# At most this many datagrams are taken before they are processed: it bounds
+# how long the first of them waits when a backlog has built up.
+MAX_DATAGRAMS_PER_PASS = 256
 _READ_BYTES = MAX_MESSAGE_BYTES + 1  # one more, so an oversize datagram is seen as such
 SOURCE = "udp"
 
@@ -40,6 +47,7 @@ class UdpReceiver:
         self.sock = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
         self.sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, RECEIVE_BUFFER_BYTES)
         self.sock.bind((host, port))
+        self.sock.setblocking(False)  # the loop waits in select and then drains
         self.datagrams = 0
         self._stopping = False
         self._thread = threading.Thread(target=self._run, name="podwatch-udp", daemon=True)
@@ -53,20 +61,32 @@ class UdpReceiver:
         self._thread.start()
 
     def _run(self) -> None:
+        while not self._stopping:
+            select.select([self.sock], [], [])
+            if self._take_arrived():
+                self.hub.process(time.time())
+
+    def _take_arrived(self) -> int:
+        """Decode and queue the datagrams already waiting (up to a pass's worth)."""
         recv, ingest, clock = self.sock.recv, self.hub.ingest, time.time
-        while True:
+        taken = 0
+        while taken < MAX_DATAGRAMS_PER_PASS:
             try:
                 data = recv(_READ_BYTES)
-                rx = clock()
+            except BlockingIOError:
+                break  # nothing more has arrived
             except OSError:
                 if self._stopping:
-                    return
+                    break
                 continue  # e.g. ICMP errors reported on the socket: keep listening
+            rx = clock()
             if self._stopping:
-                return
-            self.datagrams += 1
+                break
+            taken += 1
             samples, failures = decode(data)
-            ingest(samples, failures, rx, SOURCE)
+            ingest(samples, failures, rx, SOURCE, wake=False)
+        self.datagrams += taken
+        return taken
 
     def stop(self) -> None:
         """End the loop: a datagram to ourselves wakes the blocked receive."""

@@ -1,0 +1,282 @@
+"""Pure figure builders: arrays in, Plotly figures (plain dicts) or extendData payloads out.
+
+Owns how each view looks: colours, trace order, axis titles with units, the
+robot footprint drawing. Every builder takes arrays that are already
+windowed and downsampled, in display units; nothing here reads a clock, a
+session or a file, so each view is tested on known samples. Figures are
+plain dicts, not graph objects: building graph objects with validation took
+about 0.3 s per refresh, far over the page's budget. Arrays go out as plain
+rounded numbers, not Plotly's base64 typed arrays: extendData appends to the
+figure as the page holds it, and Plotly cannot extend a typed-array spec.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+# Colours from the Okabe-Ito palette (Okabe and Ito, "Color Universal Design",
+# 2008), chosen to stay apart for the common forms of colour blindness.
+RECOMPUTE_COLOUR = "#0072B2"  # blue
+REPORTED_COLOUR = "#D55E00"  # vermillion
+DISAGREEMENT_COLOUR = "#009E73"  # bluish green
+LONG_LOOP_COLOUR = "#CC79A7"  # reddish purple
+ANCHOR_COLOUR = "#000000"
+NEUTRAL = "#6b6b6b"
+FIELD_LINE = "#c9c9c9"
+
+RECOMPUTE_NAME = "podwatch recompute"
+REPORTED_NAME = "robot's own pose"
+
+# Trace order of each view: the extendData payloads address traces by index.
+TRACK_RECOMPUTE_PATH, TRACK_REPORTED_PATH, TRACK_ANCHORS, TRACK_RECOMPUTE_BODY, TRACK_REPORTED_BODY = range(5)
+POSE_ROWS = ("x", "y", "heading")  # each row: recompute trace, then reported trace
+ERROR_POSITION, ERROR_HEADING = range(2)
+LOOP_PERIOD, LOOP_LONG = range(2)
+HISTOGRAM_SHORT, HISTOGRAM_LONG = range(2)
+FIELD_TILES = 6  # common practice: a field is 6 x 6 foam tiles
+# A footprint: body outline (5 points, closed), gap, heading arrow (2), gap, arrowhead (3).
+FOOTPRINT_POINTS = 12
+
+_FONT = {"family": "system-ui, -apple-system, Segoe UI, sans-serif", "size": 12, "color": "#1d2733"}
+_MARGIN = {"l": 60, "r": 12, "t": 30, "b": 40}
+
+
+def as_list(values: np.ndarray, digits: int = 3) -> list:
+    """Plain JSON numbers: rounded (a thousandth of a second, inch or degree is
+    plenty on screen), NaN as None (a gap)."""
+    a = np.round(np.asarray(values, dtype=float), digits)
+    if np.isfinite(a).all():
+        return a.tolist()
+    return np.where(np.isfinite(a), a, None).tolist()
+
+
+def _layout(**extra) -> dict:
+    """Common layout; sizes come from the page's stylesheet (the graphs are responsive)."""
+    return {
+        "font": _FONT,
+        "margin": _MARGIN,
+        "autosize": True,
+        "paper_bgcolor": "#ffffff",
+        "plot_bgcolor": "#fbfbf8",
+        "uirevision": "keep",  # keep the user's zoom across redraws
+        "legend": {"orientation": "h", "yanchor": "bottom", "y": 1.0, "xanchor": "left", "x": 0.0},
+        **extra,
+    }
+
+
+def _stacked_axes(titles: list[str], x_title: str, gap: float = 0.05) -> dict:
+    """Axes for rows sharing one time axis: yaxis (top) ... yaxisN (bottom), all on xaxis."""
+    n = len(titles)
+    height = (1.0 - gap * (n - 1)) / n
+    axes: dict = {"xaxis": {"title": {"text": x_title}, "anchor": f"y{n}" if n > 1 else "y"}}
+    for k, title in enumerate(titles):
+        top = 1.0 - k * (height + gap)
+        axes["yaxis" if k == 0 else f"yaxis{k + 1}"] = {
+            "title": {"text": title}, "domain": [max(top - height, 0.0), top], "anchor": "x",
+        }
+    return axes
+
+
+def _line(x, y, name: str, colour: str, *, dash: str = "solid", width: float = 2.0, yaxis: str = "y",
+          legend: bool = True) -> dict:
+    return {
+        "type": "scattergl", "mode": "lines", "x": x, "y": y, "name": name, "legendgroup": name,
+        "showlegend": legend, "yaxis": yaxis, "line": {"color": colour, "width": width, "dash": dash},
+    }
+
+
+def footprint(pose: tuple[float, float, float] | None, size: float) -> tuple[list, list]:
+    """(xs, ys) of FOOTPRINT_POINTS points drawing a square robot of side ``size``
+    at ``pose`` (x, y, heading rad, REP 103) with an arrow along its heading;
+    None where the pose is unknown and between the strokes."""
+    if pose is None or not all(map(math.isfinite, pose)):
+        return [None] * FOOTPRINT_POINTS, [None] * FOOTPRINT_POINTS
+    x, y, th = pose
+    h = size / 2.0
+    # Body frame: x forward, y left. The arrow reaches past the front edge.
+    body = [(h, h), (-h, h), (-h, -h), (h, -h), (h, h)]
+    arrow = [(0.0, 0.0), (1.4 * h, 0.0)]
+    head = [(1.05 * h, 0.3 * h), (1.4 * h, 0.0), (1.05 * h, -0.3 * h)]
+    c, s = math.cos(th), math.sin(th)
+    xs: list = []
+    ys: list = []
+    for stroke in (body, arrow, head):
+        if xs:
+            xs.append(None)
+            ys.append(None)
+        for bx, by in stroke:
+            xs.append(x + c * bx - s * by)
+            ys.append(y + s * bx + c * by)
+    return xs, ys
+
+
+def track_map(
+    recompute_xy: np.ndarray,
+    reported_xy: np.ndarray,
+    anchors_xy: np.ndarray,
+    recompute_pose: tuple[float, float, float] | None,
+    reported_pose: tuple[float, float, float] | None,
+    field_size: float,
+    footprint_size: float,
+    unit: str,
+) -> dict:
+    """The field seen from above: both paths (N, 2), re-anchor points (K, 2) and
+    each source's current footprint; lengths in ``unit``, origin at the field centre."""
+    half = field_size / 2.0
+    data = [
+        _line(as_list(recompute_xy[:, 0]), as_list(recompute_xy[:, 1]), RECOMPUTE_NAME, RECOMPUTE_COLOUR),
+        _line(as_list(reported_xy[:, 0]), as_list(reported_xy[:, 1]), REPORTED_NAME, REPORTED_COLOUR, dash="dot"),
+        {
+            "type": "scattergl", "mode": "markers", "x": as_list(anchors_xy[:, 0]), "y": as_list(anchors_xy[:, 1]),
+            "name": "re-anchored here",
+            "marker": {"symbol": "x-thin", "size": 12, "line": {"width": 2, "color": ANCHOR_COLOUR}},
+        },
+    ]
+    for pose, colour, name in ((recompute_pose, RECOMPUTE_COLOUR, RECOMPUTE_NAME),
+                               (reported_pose, REPORTED_COLOUR, REPORTED_NAME)):
+        xs, ys = footprint(pose, footprint_size)
+        data.append({"type": "scatter", "mode": "lines", "x": xs, "y": ys, "name": f"{name}, now",
+                     "showlegend": False, "hoverinfo": "skip", "line": {"color": colour, "width": 2.5}})
+    tile = field_size / FIELD_TILES
+    line = {"color": FIELD_LINE, "width": 1}
+    shapes = [{"type": "rect", "x0": -half, "x1": half, "y0": -half, "y1": half, "layer": "below",
+               "line": {"color": NEUTRAL, "width": 2}}]
+    for k in range(1, FIELD_TILES):
+        at = -half + k * tile
+        shapes.append({"type": "line", "x0": at, "x1": at, "y0": -half, "y1": half, "layer": "below", "line": line})
+        shapes.append({"type": "line", "x0": -half, "x1": half, "y0": at, "y1": at, "layer": "below", "line": line})
+    pad = 0.04 * field_size
+    span = [-half - pad, half + pad]
+    layout = _layout(
+        shapes=shapes,
+        showlegend=False,  # the page shows a legend key above the map
+        xaxis={"title": {"text": f"x ({unit}), forward, REP 103"}, "range": span, "zeroline": False,
+               "constrain": "domain"},
+        yaxis={"title": {"text": f"y ({unit}), left"}, "range": span, "zeroline": False,
+               "scaleanchor": "x", "scaleratio": 1},
+    )
+    return {"data": data, "layout": layout}
+
+
+def track_extension(
+    recompute_xy: np.ndarray,
+    reported_xy: np.ndarray,
+    anchors_xy: np.ndarray,
+    recompute_pose: tuple[float, float, float] | None,
+    reported_pose: tuple[float, float, float] | None,
+    footprint_size: float,
+    max_points: int,
+) -> tuple[dict, list[int], dict]:
+    """extendData for ``track_map``: new path points and anchors appended, the
+    footprints replaced (their traces keep only FOOTPRINT_POINTS points)."""
+    bodies = [footprint(recompute_pose, footprint_size), footprint(reported_pose, footprint_size)]
+    xs = [as_list(recompute_xy[:, 0]), as_list(reported_xy[:, 0]), as_list(anchors_xy[:, 0]), bodies[0][0], bodies[1][0]]
+    ys = [as_list(recompute_xy[:, 1]), as_list(reported_xy[:, 1]), as_list(anchors_xy[:, 1]), bodies[0][1], bodies[1][1]]
+    keep = [max_points, max_points, max_points, FOOTPRINT_POINTS, FOOTPRINT_POINTS]
+    return {"x": xs, "y": ys}, list(range(5)), {"x": keep, "y": keep}
+
+
+def wrapped_degrees(heading_rad: np.ndarray) -> np.ndarray:
+    """Degrees in (-180, 180]."""
+    deg = np.degrees(heading_rad)
+    return 180.0 - np.mod(180.0 - deg, 360.0)
+
+
+def _pose_columns(recompute: np.ndarray, reported: np.ndarray) -> list[np.ndarray]:
+    """x, y and heading (deg) of recompute then reported, in trace order."""
+    return [recompute[:, 0], reported[:, 0], recompute[:, 1], reported[:, 1],
+            wrapped_degrees(recompute[:, 2]), wrapped_degrees(reported[:, 2])]
+
+
+def pose_traces(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, unit: str) -> dict:
+    """x, y (``unit``) and heading (degrees, wrapped to (-180, 180]) against time
+    t (s), from (N, 3) REP 103 poses with headings in radians."""
+    tt = as_list(t)
+    data = []
+    for k, values in enumerate(_pose_columns(recompute, reported)):
+        row, source = divmod(k, 2)
+        name, colour, dash = ((RECOMPUTE_NAME, RECOMPUTE_COLOUR, "solid"), (REPORTED_NAME, REPORTED_COLOUR, "dot"))[source]
+        data.append(_line(tt, as_list(values), name, colour, dash=dash, width=1.6,
+                          yaxis="y" if row == 0 else f"y{row + 1}", legend=row == 0))
+    axes = _stacked_axes([f"x ({unit})", f"y ({unit})", "heading (deg)"], "time (s)")
+    return {"data": data, "layout": _layout(
+        **axes)}
+
+
+def pose_extension(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, max_points: int) -> tuple[dict, list[int], int]:
+    ys = [as_list(y) for y in _pose_columns(recompute, reported)]
+    tl = as_list(t)
+    return {"x": [tl] * len(ys), "y": ys}, list(range(len(ys))), max_points
+
+
+def disagreement_traces(t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, unit: str) -> dict:
+    """Position error (``unit``) and heading error (degrees) against time t (s)."""
+    tt = as_list(t)
+    data = [
+        _line(tt, as_list(position_error), "position error", DISAGREEMENT_COLOUR, width=1.8),
+        _line(tt, as_list(heading_error_deg), "heading error", DISAGREEMENT_COLOUR, width=1.8, dash="dot", yaxis="y2"),
+    ]
+    axes = _stacked_axes([f"position ({unit})", "heading (deg)"], "time (s)", gap=0.08)
+    axes["yaxis"]["rangemode"] = "tozero"
+    return {"data": data, "layout": _layout(
+        showlegend=False, **axes)}
+
+
+def disagreement_extension(
+    t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, max_points: int
+) -> tuple[dict, list[int], int]:
+    tl = as_list(t)
+    return {"x": [tl, tl], "y": [as_list(position_error), as_list(heading_error_deg)]}, [0, 1], max_points
+
+
+def loop_traces(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms: np.ndarray, threshold_ms: float) -> dict:
+    """Loop period (ms) against time t (s); loops over ``threshold_ms`` as markers on top."""
+    data = [
+        _line(as_list(t), as_list(loop_ms), "loop period", NEUTRAL, width=1.2),
+        {"type": "scattergl", "mode": "markers", "x": as_list(long_t), "y": as_list(long_ms),
+         "name": f"longer than {threshold_ms:g} ms",
+         "marker": {"color": LONG_LOOP_COLOUR, "size": 8, "symbol": "diamond"}},
+    ]
+    threshold = {"type": "line", "xref": "paper", "x0": 0, "x1": 1, "y0": threshold_ms, "y1": threshold_ms,
+                 "line": {"color": LONG_LOOP_COLOUR, "width": 1, "dash": "dash"}}
+    layout = _layout(
+        shapes=[threshold], xaxis={"title": {"text": "time (s)"}},
+                     yaxis={"title": {"text": "loop period (ms)"}, "rangemode": "tozero"})
+    return {"data": data, "layout": layout}
+
+
+def loop_extension(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms: np.ndarray, max_points: int) -> tuple[dict, list[int], int]:
+    return {"x": [as_list(t), as_list(long_t)], "y": [as_list(loop_ms), as_list(long_ms)]}, [0, 1], max_points
+
+
+def loop_histogram(loop_ms: np.ndarray, threshold_ms: float, mean_ms: float, p95_ms: float) -> dict:
+    """Counts of loop periods (ms) in 1 ms bins (wider when the spread is large);
+    bins from ``threshold_ms`` up in the highlight colour; mean and p95 marked."""
+    loop = loop_ms[np.isfinite(loop_ms)]
+    top = max(float(loop.max()) if len(loop) else 0.0, threshold_ms) + 1.0
+    width = float(max(1, math.ceil(top / 80.0)))
+    edges = np.arange(0.0, top + width, width)
+    counts, edges = np.histogram(loop, bins=edges)
+    centres = (edges[:-1] + edges[1:]) / 2.0
+    long = edges[:-1] >= threshold_ms
+    data = [
+        {"type": "bar", "x": as_list(centres[~long]), "y": counts[~long].tolist(), "width": width,
+         "name": "loops", "marker": {"color": NEUTRAL}},
+        {"type": "bar", "x": as_list(centres[long]), "y": counts[long].tolist(), "width": width,
+         "name": f"longer than {threshold_ms:g} ms", "marker": {"color": LONG_LOOP_COLOUR}},
+    ]
+    shapes, notes = [], []
+    for k, (value, label) in enumerate(((mean_ms, "mean"), (p95_ms, "p95"))):
+        if math.isfinite(value):
+            shapes.append({"type": "line", "yref": "paper", "y0": 0, "y1": 1, "x0": value, "x1": value,
+                           "line": {"color": "#1d2733", "width": 1, "dash": "dot"}})
+            notes.append({"x": value, "y": 1.0 - 0.1 * k, "yref": "paper", "text": f"{label} {value:.1f} ms",
+                          "showarrow": False, "xanchor": "left", "font": {"size": 11}})
+    log = bool(len(loop)) and int(counts.max()) > 50
+    layout = _layout(
+        bargap=0.05, showlegend=False, shapes=shapes, annotations=notes,
+                     xaxis={"title": {"text": "loop period (ms)"}},
+                     yaxis={"title": {"text": "loops"}, "type": "log" if log else "linear", "dtick": 1 if log else None})
+    return {"data": data, "layout": layout}

@@ -1,0 +1,181 @@
+"""The page's structure: controls, the five views and their readouts.
+
+Owns the component tree and the small HTML pieces the callbacks fill in
+(readout values, the link-health table). Static: it reads no data.
+"""
+
+from __future__ import annotations
+
+import math
+
+from dash import dcc, html
+
+from dashboard import figures, ids, readouts
+from dashboard.settings import WINDOWS_S, Settings
+from dashboard.sources import REPLAY_SPEEDS
+from receiver.session import LinkState, RobotSnapshot
+
+_GRAPH_CONFIG = {"displaylogo": False, "responsive": True}
+
+
+def _readout(label: str, component_id: str, hint: str = "") -> html.Div:
+    return html.Div(
+        className="readout",
+        title=hint,
+        children=[html.Span(label, className="readout-label"), html.Span("\u2014", id=component_id, className="readout-value")],
+    )
+
+
+def _card(title: str, *children, extra_class: str = "") -> html.Section:
+    return html.Section(className=f"card {extra_class}".strip(), children=[html.H2(title), *children])
+
+
+def _graph(component_id: str) -> html.Div:
+    """A graph filling a box whose height the stylesheet sets (class ``box-<id>``)."""
+    graph = dcc.Graph(id=component_id, config=_GRAPH_CONFIG, figure={"data": [], "layout": {}})
+    return html.Div(className=f"graph-box box-{component_id}", children=graph)
+
+
+def _legend_key() -> html.Div:
+    return html.Div(
+        className="legend-key",
+        children=[
+            html.Span([html.I(className="swatch recompute"), figures.RECOMPUTE_NAME]),
+            html.Span([html.I(className="swatch reported"), figures.REPORTED_NAME]),
+        ],
+    )
+
+
+def build(settings: Settings, replay_mode: bool) -> html.Div:
+    window_options = [{"label": f"last {w} s" if w < 120 else f"last {w // 60} min", "value": w} for w in WINDOWS_S]
+    controls = html.Header(
+        className="topbar",
+        children=[
+            html.Div(className="brand", children=[html.Span("podwatch", className="brand-name"),
+                                                  html.Span("odometry check", className="brand-sub")]),
+            dcc.Dropdown(id=ids.ROBOT, options=[], value=None, placeholder="robot", clearable=False, className="robot-select"),
+            dcc.Dropdown(id=ids.WINDOW, options=window_options, value=settings.window_s, clearable=False,
+                         className="window-select"),
+            html.Button("Pause page", id=ids.FOLLOW, n_clicks=0, className="button"),
+            html.Div(id=ids.STATUS, className="status-line"),
+        ],
+    )
+    replay = html.Div(
+        id=ids.REPLAY_BAR,
+        className="replay-bar" if replay_mode else "replay-bar hidden",
+        children=[
+            html.Span("Replay", className="bar-title"),
+            html.Button("Play", id=ids.PLAY, n_clicks=0, className="button"),
+            html.Button("Pause", id=ids.PAUSE, n_clicks=0, className="button"),
+            dcc.Dropdown(id=ids.SPEED, options=[{"label": f"{s:g}\u00d7", "value": s} for s in REPLAY_SPEEDS],
+                         value=1.0, clearable=False, className="speed-select"),
+            html.Div(className="scrub", children=dcc.Slider(id=ids.SCRUB, min=0, max=1, step=0.1, value=0,
+                                                            marks=None, updatemode="mouseup")),
+            html.Span("0.0 s of 0.0 s", id=ids.REPLAY_POSITION, className="replay-position"),
+        ],
+    )
+    opener = html.Div(
+        className="open-bar",
+        children=[
+            dcc.Input(id=ids.RECORDING_PATH, type="text", placeholder="recording path (.jsonl or .jsonl.gz)",
+                      debounce=False, className="path-input"),
+            html.Button("Open recording", id=ids.OPEN, n_clicks=0, className="button"),
+            html.Button("Back to live", id=ids.BACK_TO_LIVE, n_clicks=0, className="button hidden"),
+            html.Span(id=ids.MESSAGE, className="message-line"),
+        ],
+    )
+    disagreement = _card(
+        "Disagreement",
+        html.Div(className="readouts", children=[
+            _readout("position now", ids.POSITION_NOW),
+            _readout("worst in window", ids.POSITION_WORST),
+            _readout("growth per metre travelled", ids.POSITION_GROWTH,
+                     "change of the position error per metre driven since the last re-anchor"),
+            _readout("heading now", ids.HEADING_NOW),
+            _readout("worst in window", ids.HEADING_WORST),
+            _readout("growth per turn", ids.HEADING_GROWTH,
+                     "change of the heading error per full turn since the last re-anchor"),
+        ]),
+        _graph(ids.ERRORS),
+    )
+    loop = _card(
+        "Loop timing",
+        html.Div(className="readouts", children=[
+            _readout("loop rate", ids.LOOP_RATE),
+            _readout("mean", ids.LOOP_MEAN),
+            _readout("p95", ids.LOOP_P95),
+            _readout("max", ids.LOOP_MAX),
+            _readout(f"over {settings.loop_threshold_s * 1000:g} ms", ids.LOOP_LONG),
+            _readout("arrival jitter", ids.JITTER, "RFC 3550 interarrival jitter at the laptop"),
+        ]),
+        html.Div(className="pair", children=[_graph(ids.LOOP), _graph(ids.LOOP_HISTOGRAM)]),
+        extra_class="wide",
+    )
+    return html.Div(
+        className="page",
+        children=[
+            controls,
+            replay,
+            opener,
+            html.Main(
+                className="grid",
+                children=[
+                    _card("Track map", _legend_key(), _graph(ids.TRACK), extra_class="track"),
+                    disagreement,
+                    _card("Pose traces", _graph(ids.POSES), extra_class="wide"),
+                    loop,
+                    _card("Link health", html.Div(id=ids.LINK_TABLE), extra_class="wide"),
+                ],
+            ),
+            dcc.Interval(id=ids.TICK, interval=settings.tick_ms, n_intervals=0),
+            dcc.Store(id=ids.CURSOR, data=None),
+            dcc.Store(id=ids.REQUEST, data=None),
+            dcc.Store(id=ids.REPLAY_REQUEST, data=None),
+        ],
+    )
+
+
+def disagreement_values(d: readouts.Disagreement | None, unit: str) -> list[str]:
+    """Texts for POSITION_NOW ... HEADING_GROWTH, in that order."""
+    if d is None:
+        d = readouts.Disagreement(*([math.nan] * 6), 0.0, 0.0)
+    q = readouts.quote
+    return [
+        q(d.position_now, unit), q(d.position_worst, unit), q(d.position_per_m, f"{unit}/m"),
+        q(d.heading_now_deg, "deg", 1), q(d.heading_worst_deg, "deg", 1), q(d.heading_per_turn_deg, "deg/turn", 1),
+    ]
+
+
+def loop_values(loop: readouts.LoopTiming, jitter_s: float) -> list[str]:
+    """Texts for LOOP_RATE ... JITTER, in that order."""
+    q = readouts.quote
+    return [
+        q(loop.rate_hz, "Hz", 1), q(loop.mean_s * 1000, "ms", 1), q(loop.p95_s * 1000, "ms", 1),
+        q(loop.max_s * 1000, "ms", 1), f"{loop.long} loop{'' if loop.long == 1 else 's'}",
+        q(jitter_s * 1000, "ms", 2),
+    ]
+
+
+_STATE_CLASS = {LinkState.LIVE: "live", LinkState.QUIET: "quiet", LinkState.WAITING: "waiting"}
+
+
+def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> html.Table:
+    head = ["robot", "link", "messages", "rate", "gaps", "duplicates", "out of order", "decode errors"]
+    body = []
+    for robot, s in sorted(snapshots.items()):
+        if s.state is LinkState.QUIET:
+            state = f"no data for {max(now - s.last_rx, 0.0):.0f} s"
+        else:
+            state = s.state.value
+        errors = ", ".join(f"{reason} {n}" for reason, n in sorted(s.errors.items())) or "none"
+        body.append(html.Tr(
+            className="selected" if robot == selected else "",
+            children=[html.Td(robot), html.Td(state, className=f"state {_STATE_CLASS[s.state]}"), html.Td(f"{s.messages}"),
+                      html.Td(f"{s.rate_hz:.0f} msg/s"), html.Td(f"{s.gaps}"), html.Td(f"{s.duplicates}"),
+                      html.Td(f"{s.late}"), html.Td(errors)],
+        ))
+    rows = [html.Thead(html.Tr([html.Th(h) for h in head])), html.Tbody(body)]
+    if unattributed:
+        text = ", ".join(f"{reason} {n}" for reason, n in sorted(unattributed.items()))
+        rows.append(html.Caption(f"refused before a robot could be named: {text}"))
+    return html.Table(className="link-table", children=rows)

@@ -1,0 +1,41 @@
+"""What a dashboard is told at start: field and footprint sizes, thresholds, pacing.
+
+Owns the command-line spelling of lengths ("144in", "3.6m") and the
+defaults. Lengths are kept in metres and converted to each robot's profile
+unit when drawn, since several robots may use different units.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+from receiver.errors import UsageError
+from receiver.profile import METRES_PER_UNIT
+
+FIELD_SIZE = "144in"  # common practice: a competition field is 12 ft square
+FOOTPRINT = "18in"  # common practice: robots are limited to an 18 in cube at the start
+LOOP_THRESHOLD_MS = 50.0
+DEFAULT_HOST = "127.0.0.1"
+DEFAULT_PORT = 47475  # our own choice, next to the UDP port 47474
+WINDOWS_S = (10, 30, 60, 120, 300, 600)
+_LENGTH = re.compile(r"^\s*([0-9]*\.?[0-9]+)\s*(in|mm|cm|m)?\s*$")
+
+
+def parse_length(text: str) -> float:
+    """"144in", "3.6 m", "18" (inches) -> metres."""
+    match = _LENGTH.match(text)
+    if not match or float(match.group(1)) <= 0:
+        raise UsageError(f"expected a positive length such as 144in, 3.6m or 450mm, got {text!r}")
+    return float(match.group(1)) * METRES_PER_UNIT[match.group(2) or "in"]
+
+
+@dataclass(frozen=True)
+class Settings:
+    field_size_m: float = parse_length(FIELD_SIZE)
+    footprint_m: float = parse_length(FOOTPRINT)
+    loop_threshold_s: float = LOOP_THRESHOLD_MS / 1000.0
+    window_s: float = 60.0
+    tick_ms: int = 200  # how often the page asks for new points
+    points: int = 1000  # most points per view and window (server-side downsampling beyond)
+    full_every_s: float = 10.0  # a whole redraw this often re-trims the window exactly

@@ -1,0 +1,203 @@
+"""Where the page's data comes from: a live hub, or a recording replayed into one.
+
+Owns the replay's controls (play, pause, speed, seek) and which source the
+page shows. A replay feeds the same ``Hub.ingest``/``process`` calls the
+transports cause; seeking back rebuilds the hub and feeds it up to the new
+position as fast as it can. Never draws anything and never serves HTTP.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from typing import Callable
+
+import numpy as np
+
+from receiver.errors import UsageError
+from receiver.profile import Profile
+from receiver.recording import RecordingData, read_recording
+from receiver.replay import FAST_CHUNK, SOURCE, recorded_samples
+from receiver.session import Hub
+
+REPLAY_STEP_S = 0.02  # how often a playing replay feeds the hub (wall clock)
+REPLAY_SPEEDS = (0.25, 0.5, 1.0, 2.0, 5.0, 10.0)
+
+
+class LiveSource:
+    """A running receiver's hub; the time line is the receiver's wall clock."""
+
+    kind = "live"
+
+    def __init__(self, hub: Hub, clock: Callable[[], float] = time.time) -> None:
+        self.hub = hub
+        self.clock = clock
+        self.origin = clock()
+        self.generation = 0
+        self.label = "live"
+
+    def now(self) -> float:
+        return self.clock()
+
+
+class ReplaySource:
+    """A recording fed into its own hub at a chosen speed; starts paused at the beginning.
+
+    The time line is the recording's: its rx stamps (or robot clock when a
+    file of bare messages has none). ``generation`` changes whenever the hub
+    is rebuilt, so that a page knows to redraw everything.
+    """
+
+    kind = "replay"
+
+    def __init__(
+        self,
+        data: RecordingData,
+        profiles: dict[str, Profile] | None = None,
+        clock: Callable[[], float] = time.monotonic,
+    ) -> None:
+        self.samples, self.stamps = recorded_samples(data)
+        if not self.samples:
+            raise UsageError(f"{data.path}: the recording holds no messages")
+        self.profiles = {**data.profiles, **(profiles or {})}
+        self.label = str(data.path)
+        self.clock = clock
+        self.origin = float(self.stamps[0])
+        self.duration_s = float(self.stamps[-1] - self.stamps[0])
+        self.speed = 1.0
+        self.playing = False
+        self.generation = 0
+        self._lock = threading.RLock()
+        self._rebuild()
+        self._wall = clock()
+        self._stop = threading.Event()
+        self._thread: threading.Thread | None = None
+
+    def _rebuild(self) -> None:
+        self.hub = Hub(self.profiles)
+        self._next = 0  # index of the next sample to feed
+        self._position = self.origin
+        self.generation += 1
+
+    def now(self) -> float:
+        return self._position
+
+    @property
+    def position_s(self) -> float:
+        """Seconds since the start of the recording."""
+        return self._position - self.origin
+
+    def play(self) -> None:
+        with self._lock:
+            if self._next >= len(self.samples):
+                self.seek(0.0)
+            self._wall = self.clock()
+            self.playing = True
+
+    def pause(self) -> None:
+        with self._lock:
+            self.advance()
+            self.playing = False
+
+    def set_speed(self, speed: float) -> None:
+        if not speed > 0:
+            raise UsageError(f"replay speed must be positive, got {speed!r}")
+        with self._lock:
+            self.advance()
+            self.speed = float(speed)
+
+    def seek(self, position_s: float) -> None:
+        """Jump to ``position_s`` seconds after the start (clamped to the recording)."""
+        with self._lock:
+            target = self.origin + min(max(float(position_s), 0.0), self.duration_s)
+            if target < self._position:
+                self._rebuild()
+            self._feed_until(target)
+            self._wall = self.clock()
+
+    def advance(self) -> None:
+        """Feed what is due since the last call while playing; stop at the end."""
+        with self._lock:
+            wall = self.clock()
+            if self.playing:
+                self._feed_until(min(self._position + (wall - self._wall) * self.speed, float(self.stamps[-1])))
+                if self._next >= len(self.samples):
+                    self.playing = False
+            self._wall = wall
+
+    def _feed_until(self, target: float) -> None:
+        end = int(np.searchsorted(self.stamps, target, side="right"))
+        for start in range(self._next, end, FAST_CHUNK):
+            stop = min(start + FAST_CHUNK, end)
+            for k in range(start, stop):
+                self.hub.ingest([self.samples[k]], [], float(self.stamps[k]), SOURCE)
+            self.hub.process(float(self.stamps[stop - 1]))
+        self._next = max(self._next, end)
+        self._position = target
+
+    def start(self) -> None:
+        """Run the replay clock in a thread (a playing replay moves on its own)."""
+        self._thread = threading.Thread(target=self._run, name="podwatch-replay", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        while not self._stop.wait(REPLAY_STEP_S):
+            self.advance()
+
+    def stop(self) -> None:
+        self._stop.set()
+        if self._thread is not None:
+            self._thread.join()
+
+
+def open_recording(path: str, profiles: dict[str, Profile] | None = None) -> ReplaySource:
+    """A started, paused replay of the recording at ``path``."""
+    profiles = profiles or {}
+    data = read_recording(path, {n: len(p.wheels) for n, p in profiles.items()})
+    source = ReplaySource(data, profiles)
+    source.start()
+    return source
+
+
+class Station:
+    """What the page shows: the live source, or a replay opened from the page or command line."""
+
+    def __init__(self, live: LiveSource | None = None, replay: ReplaySource | None = None,
+                 profiles: dict[str, Profile] | None = None) -> None:
+        assert live is not None or replay is not None
+        self.live = live
+        self.replay = replay
+        self.profiles = dict(profiles or {})
+        self._lock = threading.Lock()
+
+    @property
+    def active(self) -> LiveSource | ReplaySource:
+        return self.replay if self.replay is not None else self.live
+
+    def key(self) -> str:
+        """Changes whenever the page must redraw everything (another source or a rebuilt hub)."""
+        source = self.active
+        return f"{source.kind}:{id(source)}:{source.generation}"
+
+    def open(self, path: str) -> str:
+        """Replay the recording at ``path`` instead of what was shown; returns a line for the page."""
+        source = open_recording(path, self.profiles)
+        with self._lock:
+            old, self.replay = self.replay, source
+        if old is not None:
+            old.stop()
+        return f"opened {path}: {len(source.samples)} messages, {source.duration_s:.1f} s"
+
+    def show_live(self) -> bool:
+        """Back to the live receiver, when there is one."""
+        if self.live is None:
+            return False
+        with self._lock:
+            old, self.replay = self.replay, None
+        if old is not None:
+            old.stop()
+        return True
+
+    def close(self) -> None:
+        if self.replay is not None:
+            self.replay.stop()

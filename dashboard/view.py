@@ -1,0 +1,186 @@
+"""One refresh of the page for one robot: a whole redraw or only the new points.
+
+Owns the step between a source and the figure builders: which rows are in
+the window, which of them to draw (downsample.py), unit conversion, and the
+cursor the page keeps between refreshes (what it already has). A whole
+redraw happens on a new robot, window or source and every ``full_every_s``
+(re-trimming the window exactly); otherwise only rows newer than the cursor
+are sent as extendData. Reads the source; never touches Dash components.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from dashboard import figures, readouts
+from dashboard.downsample import pick_rows
+from dashboard.settings import Settings
+from dashboard.sources import Station
+from receiver.counts import ANCHORS
+from receiver.profile import METRES_PER_UNIT
+from receiver.session import LinkState, RobotSnapshot
+
+NO_PROFILE_UNIT = "robot units"
+_ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
+
+
+@dataclass
+class Refresh:
+    """What one refresh sends: per view either a whole figure or an extendData payload."""
+
+    figures: dict[str, dict] = field(default_factory=dict)
+    extensions: dict[str, tuple] = field(default_factory=dict)
+    histogram: dict | None = None
+    disagreement: readouts.Disagreement | None = None
+    loop: readouts.LoopTiming | None = None
+    snapshots: dict[str, RobotSnapshot] = field(default_factory=dict)
+    robots: list[str] = field(default_factory=list)
+    robot: str | None = None  # the robot shown: the one asked for, else the first there is
+    status: str = ""
+    unit: str = NO_PROFILE_UNIT
+    now: float = math.nan
+    unattributed: dict[str, int] = field(default_factory=dict)  # refused messages no robot could be named for
+    cursor: dict = field(default_factory=dict)
+
+
+def _unit(station: Station, robot: str | None) -> tuple[str, float | None]:
+    profile = station.active.hub.profiles.get(robot) if robot else None
+    if profile is None:
+        return NO_PROFILE_UNIT, None
+    return profile.distance_unit, METRES_PER_UNIT[profile.distance_unit]
+
+
+def status_line(snap: RobotSnapshot | None, now: float, source_label: str) -> str:
+    """One line on the selected robot's link, e.g. "practice-bot: no data for 4 s"."""
+    if snap is None:
+        return f"{source_label}: waiting for a robot"
+    if snap.state is LinkState.WAITING:
+        text = f"{snap.robot}: waiting for data"
+    elif snap.state is LinkState.QUIET:
+        text = f"{snap.robot}: no data for {max(now - snap.last_rx, 0.0):.0f} s"
+    else:
+        text = f"{snap.robot}: receiving, {snap.rate_hz:.0f} messages/s"
+    if not snap.has_profile:
+        text += "; no profile for this robot (give one with --profile): not recomputed"
+    return f"{source_label} \u00b7 {text}"
+
+
+def refresh(
+    station: Station, settings: Settings, robot: str | None, window_s: float, cursor: dict | None, force_full: bool = False
+) -> Refresh:
+    source = station.active
+    now = source.now()
+    hub = source.hub
+    snapshots = hub.snapshot(now)
+    robots = sorted(snapshots)
+    if robot not in snapshots:
+        robot = robots[0] if robots else None
+    unit, metres_per_unit = _unit(station, robot)
+    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, status=status_line(snapshots.get(robot), now, source.label), now=now)
+    named = sum((Counter(s.errors) for s in snapshots.values()), Counter())
+    out.unattributed = {str(r): n - named[str(r)] for r, n in hub.errors.items() if n > named[str(r)]}
+    key = station.key()
+    full = (
+        force_full
+        or not cursor
+        or cursor.get("robot") != robot
+        or cursor.get("key") != key
+        or cursor.get("window") != window_s
+        or now - cursor.get("full_at", -math.inf) >= settings.full_every_s
+        or now < cursor.get("full_at", -math.inf)
+    )
+    rows = hub.history(robot, since_rx=now - window_s) if robot else None
+    if rows is None or not len(rows["rx"]):
+        rows = _empty_rows()
+    t = rows["rx"] - source.origin
+    points = settings.points
+    if full:
+        span = float(t[-1] - t[0]) if len(t) > 1 else 0.0
+        estimate = len(t) * window_s / span if span > 0 else points
+        max_points = int(min(points, max(16, math.ceil(estimate))))
+        new = slice(0, len(t))
+        n_out = points
+    else:
+        max_points = cursor["max_points"]
+        first = int(np.searchsorted(rows["rx"], cursor["rx"], side="right"))
+        new = slice(first, len(t))
+        span = float(rows["rx"][-1] - cursor["rx"]) if len(t) else 0.0
+        n_out = max(4, math.ceil(points * span / window_s))
+    _views(out, rows, t, new, n_out, full, max_points, settings, unit, metres_per_unit)
+    if len(t):
+        out.disagreement = readouts.disagreement(
+            rows["pose"], rows["position_error"], rows["heading_error"], rows["kind"], metres_per_unit or math.nan
+        )
+    out.loop = readouts.loop_timing(rows["loop"], settings.loop_threshold_s)
+    out.histogram = figures.loop_histogram(
+        rows["loop"] * 1000.0, settings.loop_threshold_s * 1000.0, out.loop.mean_s * 1000.0, out.loop.p95_s * 1000.0
+    )
+    last_rx = float(rows["rx"][-1]) if len(t) else (cursor or {}).get("rx", now - window_s)
+    out.cursor = {
+        "robot": robot,
+        "key": key,
+        "window": window_s,
+        "rx": last_rx if full or len(t) else cursor["rx"],
+        "full_at": now if full else cursor["full_at"],
+        "max_points": max_points,
+    }
+    return out
+
+
+def _views(
+    out: Refresh, rows: dict, t: np.ndarray, new: slice, n_out: int, full: bool, max_points: int,
+    settings: Settings, unit: str, metres_per_unit: float | None,
+) -> None:
+    scale = 1.0 / (metres_per_unit or METRES_PER_UNIT["in"])
+    field_size, body = settings.field_size_m * scale, settings.footprint_m * scale
+    tn = t[new]
+    pose, rep = rows["pose"][new], rows["reported"][new]
+    err, head = rows["position_error"][new], np.degrees(rows["heading_error"][new])
+    loop_ms = rows["loop"][new] * 1000.0
+    kind = rows["kind"][new]
+    now_pose = _last_finite(rows["pose"])
+    now_reported = _last_finite(rows["reported"])
+    anchors = pose[np.isin(kind, _ANCHOR_KINDS)][:, :2]
+
+    track = pick_rows(tn, [pose[:, 0], pose[:, 1], rep[:, 0], rep[:, 1]], n_out)
+    poses = pick_rows(tn, [*pose.T, *rep.T], n_out)
+    errors = pick_rows(tn, [err, head], n_out)
+    loops = pick_rows(tn, [loop_ms], n_out)
+    long = np.flatnonzero(loop_ms > settings.loop_threshold_s * 1000.0)[-settings.points:]
+    threshold_ms = settings.loop_threshold_s * 1000.0
+    if full:
+        out.figures["track"] = figures.track_map(
+            pose[track, :2], rep[track, :2], anchors, now_pose, now_reported,
+            field_size, body, unit,
+        )
+        out.figures["poses"] = figures.pose_traces(tn[poses], pose[poses], rep[poses], unit)
+        out.figures["errors"] = figures.disagreement_traces(tn[errors], err[errors], head[errors], unit)
+        out.figures["loop"] = figures.loop_traces(
+            tn[loops], loop_ms[loops], tn[long], loop_ms[long], threshold_ms
+        )
+        return
+    if not len(tn):
+        return
+    out.extensions["track"] = figures.track_extension(
+        pose[track, :2], rep[track, :2], anchors, now_pose, now_reported, body, max_points
+    )
+    out.extensions["poses"] = figures.pose_extension(tn[poses], pose[poses], rep[poses], max_points)
+    out.extensions["errors"] = figures.disagreement_extension(tn[errors], err[errors], head[errors], max_points)
+    out.extensions["loop"] = figures.loop_extension(tn[loops], loop_ms[loops], tn[long], loop_ms[long], max_points)
+
+
+def _last_finite(poses: np.ndarray) -> tuple[float, float, float] | None:
+    ok = np.flatnonzero(np.isfinite(poses).all(axis=1))
+    return tuple(map(float, poses[ok[-1]])) if len(ok) else None
+
+
+def _empty_rows() -> dict[str, np.ndarray]:
+    e = np.empty(0)
+    return {
+        "seq": e.astype(np.int64), "t": e, "rx": e, "pose": np.empty((0, 3)), "reported": np.empty((0, 3)),
+        "position_error": e, "heading_error": e, "loop": e, "kind": e.astype(np.int8),
+    }

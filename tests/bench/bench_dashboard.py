@@ -1,0 +1,220 @@
+"""Dashboard speed: update-callback time and payload, and updates per second in Chromium.
+
+Run: .venv/bin/python tests/bench/bench_dashboard.py [--seconds S]
+
+Part 1 (server side, no network): a hub holding a full 60 s window of one
+robot at 1 kHz (then four robots at 200 Hz), fed 0.2 s of new samples before
+each update; the page's update callback is called through Flask's test
+client exactly as the browser calls it. Reports time per call and response
+size, for the whole redraws and the appends separately.
+Part 2 (real browser): ``podwatch serve`` with the dashboard, robots streamed
+by ``podwatch simulate --to udp://`` (other processes), headless Chromium on
+the page; counts answered update callbacks per second once the 60 s window
+is full. Targets (issue 4): < 30 ms, < 200 kB, >= 5 updates/s.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import re
+import signal
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+from dashboard import ids  # noqa: E402
+from dashboard.app import create_app  # noqa: E402
+from dashboard.settings import Settings  # noqa: E402
+from dashboard.sources import LiveSource, Station  # noqa: E402
+from receiver.profile import load_profile, write_profile  # noqa: E402
+from receiver.session import Hub  # noqa: E402
+from receiver.simulate import parse_faults, simulate  # noqa: E402
+
+PROFILE = ROOT / "replay_fixtures" / "practice-bot.toml"
+WINDOW_S = 60.0
+STEP_S = 0.2
+CHROMIUM_ARGS = ["--no-sandbox", "--headless", "--disable-gpu", "--disable-background-networking",
+                 "--disable-component-update", "--disable-sync", "--no-first-run"]
+
+
+class Clock:
+    def __init__(self, now: float) -> None:
+        self.now = now
+
+    def __call__(self) -> float:
+        return self.now
+
+
+def robots(count: int):
+    base = load_profile(PROFILE)
+    return [base] if count == 1 else [replace(base, name=f"bot-{k + 1}") for k in range(count)]
+
+
+def update_request(app, robot: str, cursor, tick: int) -> dict:
+    """The body the page posts for the view-update callback."""
+    key = next(k for k in app.callback_map if f"{ids.TRACK}.figure" in k)
+    spec = app.callback_map[key]
+    values = {
+        (ids.REQUEST, "data"): {"tick": tick}, (ids.ROBOT, "value"): robot, (ids.WINDOW, "value"): WINDOW_S,
+        (ids.CURSOR, "data"): cursor, (ids.ROBOT, "options"): [],
+    }
+    return {
+        "output": key,
+        "outputs": [{"id": part.split(".")[0], "property": part.split(".")[1].split("@")[0]}
+                    for part in key.strip(".").split("...")],
+        "inputs": [{"id": i["id"], "property": i["property"], "value": values[(i["id"], i["property"])]} for i in spec["inputs"]],
+        "state": [{"id": s["id"], "property": s["property"], "value": values[(s["id"], s["property"])]} for s in spec["state"]],
+        "changedPropIds": [f"{ids.REQUEST}.data"],
+    }
+
+
+def server_side(count: int, rate_hz: float, calls: int) -> dict:
+    profiles = robots(count)
+    hub = Hub({p.name: p for p in profiles})
+    faults = parse_faults(["reversed:right"], profiles[0])
+    t_total = WINDOW_S + calls * STEP_S + 1.0
+    streams = []
+    for k, profile in enumerate(profiles):
+        run = simulate(profile, "wander", rate_hz, t_total, seed=k + 1, faults=faults)
+        streams.append((run.samples, np.asarray(run.arrival_s)))
+    clock = Clock(1_000_000.0)
+    t0 = clock.now
+
+    def feed_until(t: float, fed: list[int]) -> None:
+        for k, (samples, arrival) in enumerate(streams):
+            end = int(np.searchsorted(arrival, t, side="right"))
+            for i in range(fed[k], end):
+                hub.ingest([samples[i]], [], t0 + float(arrival[i]), "bench")
+            fed[k] = end
+        hub.process(t0 + t)
+
+    fed = [0] * len(streams)
+    feed_until(WINDOW_S, fed)
+    clock.now = t0 + WINDOW_S
+    station = Station(live=LiveSource(hub, clock))
+    station.live.origin = t0
+    app = create_app(station, Settings(window_s=WINDOW_S))
+    client = app.server.test_client()
+    robot = profiles[0].name
+    cursor = None
+    full, append = [], []
+    for n in range(calls):
+        t = WINDOW_S + (n + 1) * STEP_S
+        feed_until(t, fed)
+        clock.now = t0 + t
+        body = update_request(app, robot, cursor, n)
+        start = time.perf_counter()
+        response = client.post("/_dash-update-component", json=body)
+        elapsed = time.perf_counter() - start
+        assert response.status_code == 200, response.data[:300]
+        answer = json.loads(response.data)["response"]
+        cursor = answer[ids.CURSOR]["data"]
+        (full if "figure" in answer.get(ids.TRACK, {}) else append).append((elapsed, len(response.data)))
+    rows = sum(len(hub.history(p.name)["rx"]) for p in profiles)
+
+    def summary(items):
+        if not items:
+            return None
+        times = [1000 * e for e, _ in items]
+        sizes = [b / 1000 for _, b in items]
+        return {"n": len(items), "median_ms": statistics.median(times), "max_ms": max(times),
+                "median_kB": statistics.median(sizes), "max_kB": max(sizes)}
+
+    return {"robots": count, "rate_hz": rate_hz, "rows_in_hub": rows, "append": summary(append), "full": summary(full)}
+
+
+def free_port() -> int:
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def in_browser(count: int, rate_hz: float, measure_s: float, fill_s: float) -> dict:
+    from playwright.sync_api import sync_playwright
+
+    tmp = Path(tempfile.mkdtemp(prefix="podwatch-bench-"))
+    profiles = robots(count)
+    paths = []
+    for p in profiles:
+        path = tmp / f"{p.name}.toml"
+        write_profile(p, path)
+        paths.append(path)
+    udp, page_port = free_port(), free_port()
+    serve = subprocess.Popen(
+        [sys.executable, "-m", "receiver.cli", "serve", *sum((["--profile", str(p)] for p in paths), []),
+         "--udp", f"127.0.0.1:{udp}", "--dashboard", f"127.0.0.1:{page_port}", "--record", str(tmp / "rec.jsonl")],
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=ROOT,
+    )
+    while "dashboard:" not in (line := serve.stdout.readline()):
+        if not line:
+            raise SystemExit("serve did not start")
+    senders = [
+        subprocess.Popen(
+            [sys.executable, "-m", "receiver.cli", "simulate", "--profile", str(path), "--path", "wander",
+             "--rate", str(rate_hz), "--duration", str(fill_s + measure_s + 30), "--seed", str(k + 1),
+             "--fault", "reversed:right", "--to", f"udp://127.0.0.1:{udp}"],
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=ROOT,
+        )
+        for k, path in enumerate(paths)
+    ]
+    stamps: list[float] = []
+    sizes: list[int] = []
+    try:
+        with sync_playwright() as pw:
+            browser = pw.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
+            page = browser.new_page(viewport={"width": 1400, "height": 2000})
+
+            def on_response(response) -> None:
+                if "_dash-update-component" in response.url and f"{ids.TRACK}.figure" in (response.request.post_data or ""):
+                    stamps.append(time.monotonic())
+                    sizes.append(int(response.headers.get("content-length", 0)))
+
+            page.on("response", on_response)
+            page.goto(f"http://127.0.0.1:{page_port}/")
+            # wait_for_timeout, not time.sleep: the sync API delivers events only while it runs
+            page.wait_for_timeout(fill_s * 1000)
+            stamps.clear()
+            sizes.clear()
+            page.wait_for_timeout(measure_s * 1000)
+            n = len(stamps)
+            rate = (n - 1) / (stamps[-1] - stamps[0]) if n > 1 else 0.0
+            shown = page.inner_text(f"#{ids.LOOP_RATE}")
+            browser.close()
+    finally:
+        for s in senders:
+            s.kill()
+        serve.send_signal(signal.SIGINT)
+        serve.communicate(timeout=30)
+    return {"robots": count, "rate_hz": rate_hz, "updates_per_s": rate, "updates": n,
+            "median_kB": statistics.median(sizes) / 1000 if sizes else None,
+            "max_kB": max(sizes) / 1000 if sizes else None, "loop_rate_on_page": shown}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--calls", type=int, default=100, help="update calls per server-side case")
+    parser.add_argument("--seconds", type=float, default=20.0, help="browser measuring time per case")
+    parser.add_argument("--fill", type=float, default=WINDOW_S, help="streaming before measuring (fills the window)")
+    parser.add_argument("--only", choices=("server", "browser"), help="run one part only")
+    args = parser.parse_args()
+    for count, rate in ((1, 1000.0), (4, 200.0)) if args.only != "browser" else ():
+        print("server", json.dumps(server_side(count, rate, args.calls)), flush=True)
+    if args.only != "server":
+        for count, rate in ((1, 1000.0), (4, 200.0)):
+            print("browser", json.dumps(in_browser(count, rate, args.seconds, args.fill)), flush=True)
+
+
+if __name__ == "__main__":
+    main()

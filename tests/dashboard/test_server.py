@@ -1,0 +1,63 @@
+"""Serving the page: loopback by default, and ``podwatch replay REC --dashboard`` end to end."""
+
+from __future__ import annotations
+
+import re
+import signal
+import subprocess
+import sys
+import time
+import urllib.request
+from pathlib import Path
+
+import pytest
+
+from dashboard.server import is_loopback
+from tests.dashboard.test_browser import free_port
+
+ROOT = Path(__file__).resolve().parents[2]
+REVERSED = ROOT / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"
+
+
+@pytest.mark.parametrize("host, loopback", [("127.0.0.1", True), ("127.5.0.9", True), ("localhost", True),
+                                            ("::1", True), ("0.0.0.0", False), ("192.168.1.20", False)])
+def test_which_addresses_count_as_loopback(host, loopback):
+    assert is_loopback(host) is loopback
+
+
+def test_replay_with_the_dashboard_serves_the_page_until_ctrl_c():
+    port = free_port()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "receiver.cli", "replay", str(REVERSED), "--dashboard", f"127.0.0.1:{port}"],
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=ROOT,
+    )
+    try:
+        url = None
+        deadline = time.monotonic() + 30.0
+        while url is None and time.monotonic() < deadline:
+            found = re.search(r"dashboard: (http://\S+)", proc.stdout.readline())
+            url = found.group(1) if found else None
+        assert url == f"http://127.0.0.1:{port}/"
+        with urllib.request.urlopen(url, timeout=10) as page:
+            assert page.status == 200 and b"podwatch" in page.read()
+    finally:
+        proc.send_signal(signal.SIGINT)
+        out, _ = proc.communicate(timeout=20)
+    assert proc.returncode == 0, out
+    assert "Traceback" not in out
+
+
+def test_a_taken_port_is_one_line():
+    import socket
+
+    with socket.socket() as taken:
+        taken.bind(("127.0.0.1", 0))
+        taken.listen()
+        port = taken.getsockname()[1]
+        done = subprocess.run(
+            [sys.executable, "-m", "receiver.cli", "replay", str(REVERSED), "--dashboard", f"127.0.0.1:{port}"],
+            capture_output=True, text=True, cwd=ROOT, timeout=60,
+        )
+    assert done.returncode == 1
+    assert done.stderr.strip().splitlines()[-1].startswith("podwatch: error: cannot serve the dashboard on 127.0.0.1:")
+    assert "Traceback" not in done.stderr
