@@ -62,7 +62,7 @@ class DashboardServer:
 
 def start_dashboard(station: Station, settings: Settings, where: str | None, say: Callable[[str], None]) -> DashboardServer:
     """Build the app for ``station``, serve it on ``where`` (HOST:PORT, default
-    127.0.0.1:47475) and tell ``say`` the URL; a port that cannot be bound is a
+    127.0.0.1:47480) and tell ``say`` the URL; a port that cannot be bound is a
     one-line UsageError."""
     host, port = parse_host_port(where, DEFAULT_HOST) if where else (DEFAULT_HOST, DEFAULT_PORT)
     try:

@@ -17,7 +17,7 @@ FIELD_SIZE = "144in"  # common practice: a competition field is 12 ft square
 FOOTPRINT = "18in"  # common practice: robots are limited to an 18 in cube at the start
 LOOP_THRESHOLD_MS = 50.0
 DEFAULT_HOST = "127.0.0.1"
-DEFAULT_PORT = 47475  # our own choice, next to the UDP port 47474
+DEFAULT_PORT = 47480  # our own choice, near the UDP (47474) and WebSocket (47475) ports
 WINDOWS_S = (10, 30, 60, 120, 300, 600)
 _LENGTH = re.compile(r"^\s*([0-9]*\.?[0-9]+)\s*(in|mm|cm|m)?\s*$")
 

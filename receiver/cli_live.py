@@ -196,7 +196,7 @@ def _dashboard_options(p: argparse.ArgumentParser, optional: bool) -> None:
     where = p.add_mutually_exclusive_group() if optional else p
     where.add_argument(
         "--dashboard", metavar="HOST:PORT",
-        help="serve the page here (default 127.0.0.1:47475; an address other than loopback is logged as a warning)",
+        help="serve the page here (default 127.0.0.1:47480; an address other than loopback is logged as a warning)",
     )
     if optional:
         where.add_argument("--no-dashboard", action="store_true", help="run headless, without the page")

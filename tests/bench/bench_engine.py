@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import os
 import resource
 import subprocess
@@ -34,33 +33,18 @@ sys.path.insert(0, str(ROOT))
 from receiver.integrate import integrate  # noqa: E402
 from receiver.kinematics import Kinematics  # noqa: E402
 from receiver.profile import load_profile, profile_to_table  # noqa: E402
+from tests.bench.plain_baseline import loop_arc  # noqa: E402
 
 PROFILE = ROOT / "replay_fixtures" / "practice-bot.toml"
-
-
-def python_loop_arc(deltas: list[tuple[float, float, float]]) -> tuple[float, float, float]:
-    """The baseline: one arc step per sample in plain Python."""
-    x = y = th = 0.0
-    for dx, dy, dth in deltas:
-        if abs(dth) < 1e-9:
-            a, b = 1.0, 0.0
-        else:
-            a, b = math.sin(dth) / dth, (1.0 - math.cos(dth)) / dth
-        lx, ly = a * dx - b * dy, b * dx + a * dy
-        c, s = math.cos(th), math.sin(th)
-        x += c * lx - s * ly
-        y += s * lx + c * ly
-        th += dth
-    return x, y, th
 
 
 def bench_integration(n: int, repeat: int) -> dict:
     rng = np.random.default_rng(1)
     deltas = np.column_stack([rng.normal(0.2, 0.05, n), rng.normal(0, 0.05, n), rng.normal(0, 0.01, n)])
-    plain_s = min(_timed(lambda: python_loop_arc(deltas)) for _ in range(repeat))
-    tuned_s = min(_timed(lambda: python_loop_arc(deltas.tolist())) for _ in range(repeat))
+    plain_s = min(_timed(lambda: loop_arc(deltas)) for _ in range(repeat))
+    tuned_s = min(_timed(lambda: loop_arc(deltas.tolist())) for _ in range(repeat))
     vec_s = min(_timed(lambda: integrate(deltas, np.zeros(3), "arc")) for _ in range(repeat))
-    final_loop = python_loop_arc(deltas.tolist())
+    final_loop = loop_arc(deltas.tolist())
     final_vec = integrate(deltas, np.zeros(3), "arc")[-1]
     assert np.allclose(final_loop, final_vec, atol=1e-6), (final_loop, final_vec)
     return {
@@ -98,36 +82,6 @@ def write_big_recording(path: Path, n: int) -> None:
             )
 
 
-BASELINE = r"""
-import json, math, sys
-path, y_l, y_r, x_s, per_count = sys.argv[1], *map(float, sys.argv[2:6])
-x = y = th = 0.0
-last = None
-rows = 0
-with open(path) as fh:
-    fh.readline()
-    for line in fh:
-        m = json.loads(line)
-        ticks = m["ticks"]
-        if last is not None:
-            s_l, s_r, s_s = ((a - b) * per_count for a, b in zip(ticks, last))
-            dth = (s_r - s_l) / (y_l - y_r)
-            dx, dy = s_l + y_l * dth, s_s - x_s * dth
-            if abs(dth) < 1e-9:
-                a, b = 1.0, 0.0
-            else:
-                a, b = math.sin(dth) / dth, (1.0 - math.cos(dth)) / dth
-            lx, ly = a * dx - b * dy, b * dx + a * dy
-            c, s = math.cos(th), math.sin(th)
-            x += c * lx - s * ly
-            y += s * lx + c * ly
-            th += dth
-        last = ticks
-        rows += 1
-print(rows, x, y, th)
-"""
-
-
 def _run_measured(cmd: list[str]) -> tuple[float, float, str]:
     """(seconds, peak RSS in MB, stdout) of a command in its own process."""
     code = (
@@ -155,7 +109,7 @@ def bench_recompute(n: int, repeat: int) -> dict:
         size_mb = rec.stat().st_size / 1e6
         podwatch = [sys.executable, "-m", "receiver.cli", "recompute", str(rec), "--out", str(Path(tmp) / "out.csv")]
         baseline = [
-            sys.executable, "-c", BASELINE, str(rec),
+            sys.executable, str(Path(__file__).with_name("plain_baseline.py")), str(rec),
             str(w["left"].y), str(w["right"].y), str(w["back"].x), str(w["left"].travel_per_count),
         ]
         results = {"ours": [], "baseline": []}

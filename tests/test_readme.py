@@ -1,0 +1,77 @@
+"""The README's commands: every `podwatch` line in it parses, and the examples
+whose output it shows print exactly that output."""
+
+from __future__ import annotations
+
+import re
+import shlex
+from pathlib import Path
+
+import pytest
+
+from receiver.cli import build_parser, main
+from receiver.live import ServeConfig
+from tests.conftest import FIXTURES
+from tests.transports.harness import handled, live_receiver, wait_until
+
+ROOT = Path(__file__).resolve().parents[1]
+README = (ROOT / "README.md").read_text()
+COMMANDS = [
+    line.strip().removeprefix("$ ")
+    for line in README.splitlines()
+    if re.match(r"^    (\$ )?podwatch [a-z]", line) and "[" not in line
+]
+
+
+def _example(command: str) -> list[str]:
+    """The lines the README shows right after ``$ command``, up to the next prompt or blank line."""
+    lines = README.splitlines()
+    start = lines.index(f"    $ {command}") + 1
+    shown = []
+    for line in lines[start:]:
+        if not line.startswith("    ") or line.startswith("    $ "):
+            break
+        shown.append(line[4:])
+    return shown
+
+
+def test_there_are_commands_to_check():
+    assert len(COMMANDS) >= 5
+
+
+@pytest.mark.parametrize("command", COMMANDS)
+def test_every_command_parses(command):
+    build_parser().parse_args(shlex.split(command)[1:])
+
+
+def test_recompute_example_prints_what_the_readme_shows(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "replay_fixtures").symlink_to(FIXTURES)
+    command = "podwatch recompute replay_fixtures/practice-bot-figure-eight-reversed-right.jsonl.gz --out poses.csv"
+    assert main(shlex.split(command)[1:]) == 0
+    assert capsys.readouterr().err.splitlines() == _example(command)
+    assert (tmp_path / "poses.csv").read_text().splitlines()[:3] == _example("head -3 poses.csv")
+
+
+def test_diagnose_example_prints_what_the_readme_shows(monkeypatch, capsys):
+    monkeypatch.chdir(ROOT)
+    command = "podwatch diagnose replay_fixtures/practice-bot-figure-eight-reversed-right.jsonl.gz"
+    assert main(shlex.split(command)[1:]) == 0
+    out = capsys.readouterr().out.splitlines()
+    shown = _example(command)
+    cut = shown.index("...")
+    assert out[:cut] == shown[:cut]
+    tail = shown[cut + 1 :]
+    assert out[out.index(tail[0]) : out.index(tail[0]) + len(tail)] == tail
+
+
+def test_simulate_to_udp_example(practice_profile, monkeypatch):
+    # The README's own command, against a receiver on the port it names.
+    monkeypatch.chdir(ROOT)
+    command = next(c for c in COMMANDS if c.startswith("podwatch simulate") and "--to udp://127.0.0.1:47474" in c)
+    config = ServeConfig({practice_profile.name: practice_profile}, udp=("127.0.0.1", 47474))
+    with live_receiver(config) as receiver:
+        assert main(shlex.split(command)[1:]) == 0
+        wait_until(lambda: handled(receiver) >= 900, "the simulated robot's messages")
+        snap = receiver.hub.snapshot(0.0)[practice_profile.name]
+    assert snap.messages >= 900 and sum(receiver.hub.errors.values()) == 0
