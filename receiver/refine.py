@@ -12,7 +12,6 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.optimize import least_squares
 
 from receiver.clip import Clip
 from receiver.conventions import imu_heading_change
@@ -174,6 +173,10 @@ def refine(clip: Clip, hypothesis: Hypothesis, reported: np.ndarray, method: str
         return float(np.sqrt(3.0 * np.mean(r**2)))
 
     start_residual = residuals(model.start)
+    # Imported here: scipy.optimize takes about a second to import, which every
+    # podwatch command would otherwise pay at start-up.
+    from scipy.optimize import least_squares
+
     result = least_squares(residuals, model.start, x_scale=model.scales, method="trf")
     m, p = len(result.fun), len(model.start)
     variance = float(result.fun @ result.fun) / max(m - p, 1)
