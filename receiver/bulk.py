@@ -12,7 +12,10 @@ from __future__ import annotations
 import gc
 import multiprocessing
 import os
+import threading
 from collections import Counter, defaultdict
+from contextlib import contextmanager
+from multiprocessing.pool import Pool
 from operator import attrgetter
 from typing import Iterable, Iterator
 
@@ -117,8 +120,27 @@ def _decode_job(job: tuple[bytes, int, dict[str, int]]) -> Decoded:
     return decoded
 
 
+@contextmanager
+def worker_pool(path: str) -> Iterator[Pool | None]:
+    """Two forked worker processes for a file big enough to be worth them, else None.
+
+    fork: the workers start at once with everything imported; so only from a
+    process with no other threads, and only where there are two cores.
+    """
+    try:
+        size = os.path.getsize(path)
+    except OSError:
+        size = 0  # the reader reports a missing or unreadable file itself
+    wanted = size >= PARALLEL_FROM_BYTES and (os.cpu_count() or 1) > 1 and threading.active_count() == 1
+    if not wanted:
+        yield None
+        return
+    with multiprocessing.get_context("fork").Pool(WORKERS) as pool:
+        yield pool
+
+
 def decode_blocks(
-    blocks: Iterable[tuple[bytes, int]], ticks_length: dict[str, int], parallel: bool
+    blocks: Iterable[tuple[bytes, int]], ticks_length: dict[str, int], pool: Pool | None
 ) -> Iterator[Decoded]:
     """Decode blocks of lines (each with the number of its first line), yielding results in order.
 
@@ -129,11 +151,9 @@ def decode_blocks(
     gc_was_enabled = gc.isenabled()
     gc.disable()
     try:
-        if parallel and (os.cpu_count() or 1) > 1:
-            # fork: the workers start at once with everything imported.
-            with multiprocessing.get_context("fork").Pool(WORKERS) as pool:
-                jobs = ((block, line_no, ticks_length) for block, line_no in blocks)
-                yield from pool.imap(_decode_job, jobs)
+        if pool is not None:
+            jobs = ((block, line_no, ticks_length) for block, line_no in blocks)
+            yield from pool.imap(_decode_job, jobs)
         else:
             for block, line_no in blocks:
                 yield _decode_job((block, line_no, ticks_length))

@@ -11,12 +11,13 @@ import argparse
 import asyncio
 import sys
 import time
-from collections import Counter
+from collections import Counter, deque
+from multiprocessing.pool import Pool
 from typing import Sequence
 
 import numpy as np
 
-from receiver import __version__, csvtable
+from receiver import __version__, bulk, csvtable
 from receiver.cli_diagnose import add_check_commands
 from receiver.cli_live import add_live_commands
 from receiver.errors import PodwatchError, UsageError
@@ -123,11 +124,33 @@ def _csv_columns(robot: str, result: Result) -> list:
     ]
 
 
+class _CsvOut:
+    """Rows to the CSV file in order; formatted on the worker pool when there is one."""
+
+    def __init__(self, out, pool: Pool | None) -> None:
+        self.out, self.pool = out, pool
+        self.pending: deque = deque()
+
+    def write(self, columns: list) -> None:
+        if self.pool is None:
+            csvtable.write(self.out, columns)
+            return
+        self.pending.append(self.pool.apply_async(csvtable.format_rows, (columns,)))
+        while self.pending and self.pending[0].ready():
+            self.out.write(self.pending.popleft().get())
+
+    def finish(self) -> None:
+        while self.pending:
+            self.out.write(self.pending.popleft().get())
+
+
 def cmd_recompute(args: argparse.Namespace) -> int:
     """Stream the recording block by block: decode, recompute, write rows.
 
-    Each robot's rows are in arrival order; with several robots their rows
-    interleave block by block.
+    A large file is decoded, and its rows formatted, by two worker processes
+    while this one recomputes: recomputing itself is sequential per robot, but
+    cheap. Each robot's rows are in arrival order; with several robots their
+    rows interleave block by block.
     """
     if args.method not in METHODS:
         raise UsageError(f"unknown method {args.method!r}, expected one of {', '.join(METHODS)}")
@@ -136,10 +159,12 @@ def cmd_recompute(args: argparse.Namespace) -> int:
     trackers: dict[str, Tracker | None] = {}
     totals: dict[str, _RobotTotals] = {}
     out = open(args.out, "wb") if args.out else sys.stdout.buffer
+    lengths = {n: len(p.wheels) for n, p in cli_profiles.items()}
     try:
-        with RecordingStream(args.recording, {n: len(p.wheels) for n, p in cli_profiles.items()}, progress) as rec:
+        with bulk.worker_pool(args.recording) as pool, RecordingStream(args.recording, lengths, progress, pool) as rec:
             profiles = {**rec.profiles, **cli_profiles}
             out.write(CSV_HEADER)
+            rows = _CsvOut(out, pool)
             for robot, columns in rec:
                 if robot not in trackers:
                     profile = profiles.get(robot)
@@ -151,8 +176,9 @@ def cmd_recompute(args: argparse.Namespace) -> int:
                 tracker = trackers[robot]
                 if tracker is not None:
                     result = tracker.feed(columns)
-                    csvtable.write(out, _csv_columns(robot, result))
+                    rows.write(_csv_columns(robot, result))
                     totals[robot].add(result)
+            rows.finish()
     finally:
         progress.close()
         if args.out:

@@ -12,19 +12,19 @@ from __future__ import annotations
 
 import gzip
 import itertools
-import threading
 import zlib
 from collections import Counter
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
+from multiprocessing.pool import Pool
 from pathlib import Path
 from typing import BinaryIO, Callable, Iterable, Iterator, Sequence
 
 import msgspec
 
+from receiver import bulk
 from receiver.errors import ProfileError, RecordingError
 from receiver.profile import Profile, profile_from_table, profile_to_table
-from receiver import bulk
 from receiver.protocol import Sample, decode_message
 from receiver.recompute import Columns, concat_columns
 
@@ -180,9 +180,14 @@ class RecordingStream:
     """
 
     def __init__(
-        self, path: str | Path, ticks_length: dict[str, int] | None = None, progress: Progress | None = None
+        self,
+        path: str | Path,
+        ticks_length: dict[str, int] | None = None,
+        progress: Progress | None = None,
+        pool: Pool | None = None,
     ) -> None:
         self.path = str(path)
+        self._pool = pool  # decode on these workers (bulk.worker_pool) when given
         self._stream, self._raw = _open(self.path)
         self._lines = _Lines(self._stream, self._raw, self.path, progress)
         self._blocks = iter(self._lines)
@@ -197,8 +202,6 @@ class RecordingStream:
         lengths = {name: len(p.wheels) for name, p in self.profiles.items()}
         lengths.update(ticks_length or {})
         self._tally = bulk.Tally(lengths)
-        # Worker processes are forked: only from a process with no other threads.
-        self._parallel = self._lines.total >= bulk.PARALLEL_FROM_BYTES and threading.active_count() == 1
         self.warnings: list[str] = []
 
     @property
@@ -208,7 +211,7 @@ class RecordingStream:
     def __iter__(self) -> Iterator[tuple[str, Columns]]:
         blocks = itertools.chain([self._first] if self._first else [], self._blocks)
         found = False
-        for decoded in bulk.decode_blocks(blocks, self._tally.ticks_length, self._parallel):
+        for decoded in bulk.decode_blocks(blocks, self._tally.ticks_length, self._pool):
             for piece in self._tally.accept(decoded):
                 found = True
                 yield piece
@@ -253,10 +256,11 @@ def read_recording(
     ``ticks_length`` gives the expected number of counts per robot (from the
     profiles in use); messages of another length are skipped and counted.
     """
-    with RecordingStream(path, ticks_length, progress) as stream:
-        parts: dict[str, list[Columns]] = {}
-        for robot, piece in stream:
-            parts.setdefault(robot, []).append(piece)
+    with bulk.worker_pool(str(path)) as pool:
+        with RecordingStream(path, ticks_length, progress, pool) as stream:
+            parts: dict[str, list[Columns]] = {}
+            for robot, piece in stream:
+                parts.setdefault(robot, []).append(piece)
     robots = {robot: concat_columns(pieces) for robot, pieces in parts.items()}
     return RecordingData(stream.path, stream.created, stream.profiles, robots, stream.skipped, stream.warnings)
 

@@ -37,3 +37,16 @@ def test_parallel_equals_sequential(tmp_path, monkeypatch, practice_profile, met
         assert len(cols) == 1001
         for name in ("seq", "t", "ticks", "pose", "loop", "rx"):
             np.testing.assert_array_equal(getattr(cols, name), getattr(other, name))
+
+
+def test_recompute_on_workers_writes_the_same_csv(tmp_path, monkeypatch, capsys, practice_profile, metric_profile):
+    from receiver.cli import main
+
+    path = _messy_recording(tmp_path, practice_profile, metric_profile)
+    monkeypatch.setattr(recording, "_CHUNK_BYTES", 20_000)
+    assert main(["recompute", str(path), "--out", str(tmp_path / "one.csv")]) == 0
+    monkeypatch.setattr(bulk, "PARALLEL_FROM_BYTES", 0)
+    assert main(["recompute", str(path), "--out", str(tmp_path / "two.csv")]) == 0
+    one, two = (tmp_path / "one.csv").read_bytes(), (tmp_path / "two.csv").read_bytes()
+    assert one == two and one.count(b"\n") == 1 + 2 * 1001
+    capsys.readouterr()
