@@ -10,7 +10,7 @@ from pathlib import Path
 
 from dash import Dash
 
-from dashboard import callbacks, layout
+from dashboard import callbacks, diagnosis_panel, layout
 from dashboard.settings import Settings
 from dashboard.sources import Station
 
@@ -27,4 +27,5 @@ def create_app(station: Station, settings: Settings = Settings()) -> Dash:
     )
     app.layout = layout.build(settings, replay_mode=station.replay is not None)
     callbacks.register(app, station, settings)
+    diagnosis_panel.register(app, station, settings)
     return app

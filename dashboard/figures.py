@@ -8,11 +8,21 @@ plain dicts, not graph objects: building graph objects with validation took
 about 0.3 s per refresh, far over the page's budget. Arrays go out as plain
 rounded numbers, not Plotly's base64 typed arrays: extendData appends to the
 figure as the page holds it, and Plotly cannot extend a typed-array spec.
+
+Traces are SVG ``scatter``, not WebGL ``scattergl``: the page only ever holds
+downsampled series (``Settings.points``, 1000 by default, per view and
+window), and at that length SVG is the faster of the two wherever WebGL is
+rendered in software (a laptop without GPU acceleration, headless Chromium
+in CI). Measured in headless Chromium 156 with SwiftShader, the page's five
+graphs at 1000 points per trace: about 1200 ms per update with scattergl
+against about 230 ms with scatter; on the live page the browser's CPU time
+per update fell from about 1000 ms to about 550 ms (tests/bench/bench_dashboard.py).
 """
 
 from __future__ import annotations
 
 import math
+from typing import NamedTuple
 
 import numpy as np
 
@@ -53,8 +63,13 @@ def as_list(values: np.ndarray, digits: int = 3) -> list:
 
 
 def _layout(**extra) -> dict:
-    """Common layout; sizes come from the page's stylesheet (the graphs are responsive)."""
-    return {
+    """Common layout; sizes come from the page's stylesheet (the graphs are responsive).
+
+    Every axis lets its tick labels overflow: by default Plotly measures each
+    label's box on every redraw to hide those past the graph's edge, a forced
+    browser layout per label that cost 15-20 % of a redraw.
+    """
+    layout = {
         "font": _FONT,
         "margin": _MARGIN,
         "autosize": True,
@@ -62,8 +77,14 @@ def _layout(**extra) -> dict:
         "plot_bgcolor": "#fbfbf8",
         "uirevision": "keep",  # keep the user's zoom across redraws
         "legend": {"orientation": "h", "yanchor": "bottom", "y": 1.0, "xanchor": "left", "x": 0.0},
+        "xaxis": {},
+        "yaxis": {},
         **extra,
     }
+    for name, axis in layout.items():
+        if name.startswith(("xaxis", "yaxis")):
+            axis["ticklabeloverflow"] = "allow"
+    return layout
 
 
 def _stacked_axes(titles: list[str], x_title: str, gap: float = 0.05) -> dict:
@@ -82,7 +103,7 @@ def _stacked_axes(titles: list[str], x_title: str, gap: float = 0.05) -> dict:
 def _line(x, y, name: str, colour: str, *, dash: str = "solid", width: float = 2.0, yaxis: str = "y",
           legend: bool = True) -> dict:
     return {
-        "type": "scattergl", "mode": "lines", "x": x, "y": y, "name": name, "legendgroup": name,
+        "type": "scatter", "mode": "lines", "x": x, "y": y, "name": name, "legendgroup": name,
         "showlegend": legend, "yaxis": yaxis, "line": {"color": colour, "width": width, "dash": dash},
     }
 
@@ -112,32 +133,42 @@ def footprint(pose: tuple[float, float, float] | None, size: float) -> tuple[lis
     return xs, ys
 
 
-def track_map(
-    recompute_xy: np.ndarray,
-    reported_xy: np.ndarray,
-    anchors_xy: np.ndarray,
-    recompute_pose: tuple[float, float, float] | None,
-    reported_pose: tuple[float, float, float] | None,
-    field_size: float,
-    footprint_size: float,
-    unit: str,
-) -> dict:
-    """The field seen from above: both paths (N, 2), re-anchor points (K, 2) and
-    each source's current footprint; lengths in ``unit``, origin at the field centre."""
+class TrackPoints(NamedTuple):
+    """What the track map shows, in one length unit: both paths (N, 2), the
+    re-anchor points (K, 2) and each source's current pose (x, y, heading rad,
+    REP 103; None when unknown). A whole redraw and an append take the same."""
+
+    recompute_xy: np.ndarray
+    reported_xy: np.ndarray
+    anchors_xy: np.ndarray
+    recompute_pose: tuple[float, float, float] | None
+    reported_pose: tuple[float, float, float] | None
+
+
+def _track_columns(points: TrackPoints, footprint_size: float) -> tuple[list, list]:
+    """x and y of the track map's traces, in trace order: paths, anchors, footprints."""
+    bodies = [footprint(points.recompute_pose, footprint_size), footprint(points.reported_pose, footprint_size)]
+    xy = (points.recompute_xy, points.reported_xy, points.anchors_xy)
+    xs = [as_list(a[:, 0]) for a in xy] + [b[0] for b in bodies]
+    ys = [as_list(a[:, 1]) for a in xy] + [b[1] for b in bodies]
+    return xs, ys
+
+
+def track_map(points: TrackPoints, field_size: float, footprint_size: float, unit: str) -> dict:
+    """The field seen from above, origin at its centre: both paths, the re-anchor
+    points and each source's current footprint; lengths in ``unit``."""
     half = field_size / 2.0
+    xs, ys = _track_columns(points, footprint_size)
     data = [
-        _line(as_list(recompute_xy[:, 0]), as_list(recompute_xy[:, 1]), RECOMPUTE_NAME, RECOMPUTE_COLOUR),
-        _line(as_list(reported_xy[:, 0]), as_list(reported_xy[:, 1]), REPORTED_NAME, REPORTED_COLOUR, dash="dot"),
+        _line(xs[0], ys[0], RECOMPUTE_NAME, RECOMPUTE_COLOUR),
+        _line(xs[1], ys[1], REPORTED_NAME, REPORTED_COLOUR, dash="dot"),
         {
-            "type": "scattergl", "mode": "markers", "x": as_list(anchors_xy[:, 0]), "y": as_list(anchors_xy[:, 1]),
-            "name": "re-anchored here",
+            "type": "scatter", "mode": "markers", "x": xs[2], "y": ys[2], "name": "re-anchored here",
             "marker": {"symbol": "x-thin", "size": 12, "line": {"width": 2, "color": ANCHOR_COLOUR}},
         },
     ]
-    for pose, colour, name in ((recompute_pose, RECOMPUTE_COLOUR, RECOMPUTE_NAME),
-                               (reported_pose, REPORTED_COLOUR, REPORTED_NAME)):
-        xs, ys = footprint(pose, footprint_size)
-        data.append({"type": "scatter", "mode": "lines", "x": xs, "y": ys, "name": f"{name}, now",
+    for k, (colour, name) in enumerate(((RECOMPUTE_COLOUR, RECOMPUTE_NAME), (REPORTED_COLOUR, REPORTED_NAME)), 3):
+        data.append({"type": "scatter", "mode": "lines", "x": xs[k], "y": ys[k], "name": f"{name}, now",
                      "showlegend": False, "hoverinfo": "skip", "line": {"color": colour, "width": 2.5}})
     tile = field_size / FIELD_TILES
     line = {"color": FIELD_LINE, "width": 1}
@@ -160,20 +191,10 @@ def track_map(
     return {"data": data, "layout": layout}
 
 
-def track_extension(
-    recompute_xy: np.ndarray,
-    reported_xy: np.ndarray,
-    anchors_xy: np.ndarray,
-    recompute_pose: tuple[float, float, float] | None,
-    reported_pose: tuple[float, float, float] | None,
-    footprint_size: float,
-    max_points: int,
-) -> tuple[dict, list[int], dict]:
+def track_extension(points: TrackPoints, footprint_size: float, max_points: int) -> tuple[dict, list[int], dict]:
     """extendData for ``track_map``: new path points and anchors appended, the
     footprints replaced (their traces keep only FOOTPRINT_POINTS points)."""
-    bodies = [footprint(recompute_pose, footprint_size), footprint(reported_pose, footprint_size)]
-    xs = [as_list(recompute_xy[:, 0]), as_list(reported_xy[:, 0]), as_list(anchors_xy[:, 0]), bodies[0][0], bodies[1][0]]
-    ys = [as_list(recompute_xy[:, 1]), as_list(reported_xy[:, 1]), as_list(anchors_xy[:, 1]), bodies[0][1], bodies[1][1]]
+    xs, ys = _track_columns(points, footprint_size)
     keep = [max_points, max_points, max_points, FOOTPRINT_POINTS, FOOTPRINT_POINTS]
     return {"x": xs, "y": ys}, list(range(5)), {"x": keep, "y": keep}
 
@@ -235,7 +256,7 @@ def loop_traces(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms:
     """Loop period (ms) against time t (s); loops over ``threshold_ms`` as markers on top."""
     data = [
         _line(as_list(t), as_list(loop_ms), "loop period", NEUTRAL, width=1.2),
-        {"type": "scattergl", "mode": "markers", "x": as_list(long_t), "y": as_list(long_ms),
+        {"type": "scatter", "mode": "markers", "x": as_list(long_t), "y": as_list(long_ms),
          "name": f"longer than {threshold_ms:g} ms",
          "marker": {"color": LONG_LOOP_COLOUR, "size": 8, "symbol": "diamond"}},
     ]

@@ -10,7 +10,7 @@ import math
 
 from dash import dcc, html
 
-from dashboard import figures, ids, readouts
+from dashboard import diagnosis_panel, figures, ids, readouts
 from dashboard.settings import WINDOWS_S, Settings
 from dashboard.sources import REPLAY_SPEEDS
 from receiver.session import LinkState, RobotSnapshot
@@ -122,6 +122,7 @@ def build(settings: Settings, replay_mode: bool) -> html.Div:
                 children=[
                     _card("Track map", _legend_key(), _graph(ids.TRACK), extra_class="track"),
                     disagreement,
+                    *diagnosis_panel.cards(settings),
                     _card("Pose traces", _graph(ids.POSES), extra_class="wide"),
                     loop,
                     _card("Link health", html.Div(id=ids.LINK_TABLE), extra_class="wide"),

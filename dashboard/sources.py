@@ -16,6 +16,7 @@ import numpy as np
 
 from receiver.errors import UsageError
 from receiver.profile import Profile
+from receiver.raw_history import RawHistory
 from receiver.recording import RecordingData, read_recording
 from receiver.replay import FAST_CHUNK, SOURCE, recorded_samples
 from receiver.session import Hub
@@ -31,6 +32,8 @@ class LiveSource:
 
     def __init__(self, hub: Hub, clock: Callable[[], float] = time.time) -> None:
         self.hub = hub
+        self.raw = RawHistory()  # the robots' own samples, for the live checks
+        hub.add_listener(self.raw)
         self.clock = clock
         self.origin = clock()
         self.generation = 0
@@ -75,6 +78,8 @@ class ReplaySource:
 
     def _rebuild(self) -> None:
         self.hub = Hub(self.profiles)
+        self.raw = RawHistory()
+        self.hub.add_listener(self.raw)
         self._next = 0  # index of the next sample to feed
         self._position = self.origin
         self.generation += 1

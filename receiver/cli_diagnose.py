@@ -15,6 +15,7 @@ import sys
 import numpy as np
 
 from receiver.calibrate import Calibration, push_calibration, spin_calibration
+from receiver.check_words import CHECK_MARK, TOP_HYPOTHESES, change_lines, clip_line, confidence_words, explanation_id, guided_outcome
 from receiver.clip import clip_from_columns, last_seconds
 from receiver.diagnose import Diagnosis, diagnose
 from receiver.errors import UsageError
@@ -23,8 +24,6 @@ from receiver.mistakes import profile_changes
 from receiver.profile import Profile, load_profile, write_profile
 from receiver.recompute import Columns
 from receiver.recording import read_recording
-
-TOP_HYPOTHESES = 5
 
 
 def _warn(message: str) -> None:
@@ -74,42 +73,32 @@ def _write(args: argparse.Namespace, before: Profile, after: Profile) -> None:
 def _diagnosis_text(d: Diagnosis) -> list[str]:
     unit = d.profile.distance_unit
     lines = [
-        f"{d.robot}: {d.samples} samples over {d.duration_s:.1f} s; {d.travel:.3g} {unit} driven, "
-        f"{math.degrees(d.rotation_rad):.0f} deg turned",
+        clip_line(d),
         f"verdict: {d.verdict}",
-        f"confidence: {d.confidence} (margin {d.margin:.3g} {unit} between the first and second explanation)",
+        f"confidence: {confidence_words(d)}",
         f"  {'#':>2}  {'explanation':44s} {'position RMS':>14s} {'heading RMS':>12s} {'score':>10s}",
     ]
     for k, r in enumerate(d.ranking[:TOP_HYPOTHESES], 1):
-        name = r.hypothesis.id + (f" (= {', '.join(e.id for e in r.equivalent)})" if r.equivalent else "")
         lines.append(
-            f"  {k:>2}  {name:44s} {r.position_rms:11.3f} {unit:2s} {math.degrees(r.heading_rms):8.2f} deg {r.score:10.3f}"
+            f"  {k:>2}  {explanation_id(r):44s} {r.position_rms:11.3f} {unit:2s} {math.degrees(r.heading_rms):8.2f} deg {r.score:10.3f}"
         )
     lines.append(f"fitted constants (what the robot code uses; the profile's first), RMS {d.fit.score_before:.3g} -> {d.fit.score_after:.3g} {unit}:")
     for v in d.fit.values:
         how = f"+-{v.std:.2g}" if v.determined else "not determined by this clip"
         applied = "  (changed)" if v.significant else ""
         lines.append(f"  {v.name:30s} {v.before:10.4f} -> {v.fitted:10.4f} {v.unit} {how}{applied}")
-    changes = d.changes
-    lines.append("suggested profile change:" if changes else "suggested profile change: none")
-    lines += [f"  {c}" for c in changes]
+    lines += change_lines(d.changes)
     lines += [f"note: {n}" for n in d.notes]
     return lines
 
 
 def _guided_text(g: GuidedResult) -> list[str]:
-    mark = {True: "pass", False: "FAIL", None: "----"}
     lines = [f"{g.robot}: guided check (forward push, left push, counter-clockwise turn)"]
     for step in ("forward", "left", "turn", "overall"):
         lines.append(f"  {step}:")
-        lines += [f"    {mark[c.ok]}  {c.subject:26s} {c.detail}" for c in g.checks if c.step == step]
-    flags = g.flags
-    lines.append(f"result: {'all checks pass' if g.passed else f'{len(flags)} problem(s): ' + ', '.join(flags)}")
-    changes = profile_changes(g.profile, g.corrected)
-    if changes:
-        lines.append("suggested profile change:")
-        lines += [f"  {c}" for c in changes]
-    return lines
+        lines += [f"    {CHECK_MARK[c.ok]}  {c.subject:26s} {c.detail}" for c in g.checks if c.step == step]
+    lines.append(f"result: {guided_outcome(g)}")
+    return lines + change_lines(profile_changes(g.profile, g.corrected), say_none=False)
 
 
 def cmd_diagnose(args: argparse.Namespace) -> int:
@@ -147,8 +136,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
         print(json.dumps({"recording": args.recording, **cal.to_json(), "profile_changes": changes}))
     else:
         lines = [f"{robot}: {cal.test} test, {len(clip)} samples over {clip.duration_s:.1f} s", *cal.table()]
-        lines.append("suggested profile change:" if changes else "suggested profile change: none")
-        lines += [f"  {c}" for c in changes]
+        lines += change_lines(changes)
         lines += [f"note: {n}" for n in cal.notes]
         print("\n".join(lines))
     _write(args, profile, cal.corrected)

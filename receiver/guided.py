@@ -25,7 +25,7 @@ MOVES = ("forward", "left", "turn")
 # The instructions: at least this far forward and left (inches), and this far round (degrees).
 MIN_PUSH_IN = 12.0
 MIN_TURN_DEG = 90.0
-_INSTRUCTION = {"forward": "push it forward at least 12 in", "left": "push it left at least 12 in", "turn": "turn it counter-clockwise at least 90 degrees"}
+INSTRUCTIONS = {"forward": "push it forward at least 12 in", "left": "push it left at least 12 in", "turn": "turn it counter-clockwise at least 90 degrees"}
 # A hand push runs at several in/s; below this (smoothed) the robot is at rest.
 MOVING_SPEED_IN_S = 0.5
 SMOOTH_S = 0.1
@@ -247,12 +247,12 @@ def guided_check(clip: Clip, profile: Profile, robot: str | None = None) -> Guid
     minimum = {"forward": MIN_PUSH_IN * _inch(profile), "left": MIN_PUSH_IN * _inch(profile), "turn": math.radians(MIN_TURN_DEG)}
     for kind in MOVES:
         if kind not in moves:
-            checks.append(Check(kind, "move", False, f"not found: {_INSTRUCTION[kind]}"))
+            checks.append(Check(kind, "move", False, f"not found: {INSTRUCTIONS[kind]}"))
             continue
         amount = moves[kind].amount
         shown = f"{math.degrees(amount):.0f} deg" if kind == "turn" else f"{amount:.3g} {unit}"
         big_enough = amount >= SHORT_SLACK * minimum[kind]
-        checks.append(Check(kind, "move", big_enough, f"found, {shown}" + ("" if big_enough else f": too small, {_INSTRUCTION[kind]}")))
+        checks.append(Check(kind, "move", big_enough, f"found, {shown}" + ("" if big_enough else f": too small, {INSTRUCTIONS[kind]}")))
     if extra:
         checks.append(Check("overall", "extra moves", None, f"{extra} other moves ignored (the largest of each kind counts)"))
 

@@ -147,12 +147,17 @@ _RING_FIELDS = {
     "loop": (float, None),
     "kind": (np.int8, None),  # counts.Kind of each accepted row: the dashboard marks anchors
 }
-# Rows from the one-by-one path wait in a list, in this order, and reach the
-# ring buffer in bulk (at this many, or when read): writing a row into nine
-# numpy columns costs more than recomputing it.
-_ROW_NAMES = ("rx", "seq", "t", "pose", "reported", "position_error", "heading_error", "loop", "kind")
+# Rows from the one-by-one path wait in two flat lists and reach the ring
+# buffer in bulk (at this many, or when read): writing a row into nine numpy
+# columns costs more than recomputing it. Flat lists of numbers, not a tuple
+# per row: the garbage collector tracks tuples, and at 20,000 rows/s those
+# outlived young collections, were promoted and set off full collections of
+# tens of ms each (tests/bench/bench_udp.py). Floats of a row, in this order
+# (pose and reported 3 wide), then its seq and kind as integers:
+_FLOAT_ROW = ("rx", "t", "pose", "reported", "position_error", "heading_error", "loop")
+_FLOATS_PER_ROW = 11
 _FLUSH_ROWS = 128
-assert set(_ROW_NAMES) == set(_RING_FIELDS)
+assert set(_FLOAT_ROW) | {"seq", "kind"} == set(_RING_FIELDS)
 
 
 class Session:
@@ -169,7 +174,8 @@ class Session:
         self._last: tuple[int, float] | None = None  # last accepted (seq, t)
         self._last_rx = np.nan
         self._jitter_s: float | None = None
-        self._rows: list[tuple] = []  # accepted rows not yet in the ring, as _ROW_NAMES
+        self._row_floats: list[float] = []  # accepted rows not yet in the ring, as _FLOAT_ROW
+        self._row_ints: list[int] = []  # their (seq, kind)
 
     def move(self, event: LinkEvent) -> None:
         self.state = TRANSITIONS.get((self.state, event), self.state)
@@ -226,7 +232,7 @@ class Session:
         st.last_rx = _rx(samples[-1])
         if self.state is not LinkState.LIVE:  # LIVE stays LIVE on data; the table lookup costs a microsecond
             self.move(LinkEvent.DATA)
-        feed_one, rows = self.tracker.feed_one, self._rows
+        feed_one, floats, ints = self.tracker.feed_one, self._row_floats, self._row_ints
         latest = None
         for sample in samples:
             step = feed_one(sample)
@@ -238,12 +244,14 @@ class Session:
                 continue
             rx = _rx(sample)
             self._count_one(step.kind, sample.seq, sample.t, rx)
-            rows.append((
-                rx, sample.seq, sample.t, step.pose, step.reported,
-                step.position_error, step.heading_error, step.loop_s, step.kind,
-            ))
+            pose, reported = step.pose, step.reported
+            floats += (
+                rx, sample.t, pose[0], pose[1], pose[2], reported[0], reported[1], reported[2],
+                step.position_error, step.heading_error, step.loop_s,
+            )
+            ints += (sample.seq, step.kind)
             latest = sample, step, rx
-        if len(rows) >= _FLUSH_ROWS:
+        if len(ints) >= 2 * _FLUSH_ROWS:
             self._flush_rows()
         if latest is None:
             return None
@@ -292,10 +300,15 @@ class Session:
         self._last_rx = float(rx[-1])
 
     def _flush_rows(self) -> None:
-        if self._rows:
-            columns = zip(_ROW_NAMES, zip(*self._rows))
-            self.ring.append(**{name: np.array(values, dtype=_RING_FIELDS[name][0]) for name, values in columns})
-            self._rows = []
+        if self._row_ints:
+            f = np.array(self._row_floats, dtype=float).reshape(-1, _FLOATS_PER_ROW)
+            i = np.array(self._row_ints, dtype=np.int64).reshape(-1, 2)
+            self.ring.append(
+                rx=f[:, 0], t=f[:, 1], pose=f[:, 2:5], reported=f[:, 5:8], position_error=f[:, 8],
+                heading_error=f[:, 9], loop=f[:, 10], seq=i[:, 0], kind=i[:, 1],
+            )
+            self._row_floats.clear()  # the same lists again: they stay old, out of young collections
+            self._row_ints.clear()
 
     def rows(self) -> dict[str, np.ndarray]:
         """Every buffered row, oldest first (the ring buffer's view)."""

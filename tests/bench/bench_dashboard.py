@@ -10,13 +10,18 @@ size, for the whole redraws and the appends separately.
 Part 2 (real browser): ``podwatch serve`` with the dashboard, robots streamed
 by ``podwatch simulate --to udp://`` (other processes), headless Chromium on
 the page; counts answered update callbacks per second once the 60 s window
-is full. Targets (issue 4): < 30 ms, < 200 kB, >= 5 updates/s.
+is full, and the CPU time per update of Chromium (all its processes) and of
+the serve process (which also receives the robots' messages). On a shared
+machine updates/s follows the load; the CPU times hardly do, so compare
+those across runs, and run a before and an after side by side.
+Targets (issue 4): < 30 ms, < 200 kB, >= 5 updates/s.
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import os
 import signal
 import statistics
 import subprocess
@@ -184,9 +189,11 @@ def in_browser(count: int, rate_hz: float, measure_s: float, fill_s: float) -> d
             page.goto(f"http://127.0.0.1:{page_port}/")
             # wait_for_timeout, not time.sleep: the sync API delivers events only while it runs
             page.wait_for_timeout(fill_s * 1000)
+            before = cpu_s(serve.pid)
             stamps.clear()
             sizes.clear()
             page.wait_for_timeout(measure_s * 1000)
+            used = {k: v - before[k] for k, v in cpu_s(serve.pid).items()}
             n = len(stamps)
             rate = (n - 1) / (stamps[-1] - stamps[0]) if n > 1 else 0.0
             shown = page.inner_text(f"#{ids.LOOP_RATE}")
@@ -198,7 +205,37 @@ def in_browser(count: int, rate_hz: float, measure_s: float, fill_s: float) -> d
         serve.communicate(timeout=30)
     return {"robots": count, "rate_hz": rate_hz, "updates_per_s": rate, "updates": n,
             "median_kB": statistics.median(sizes) / 1000 if sizes else None,
-            "max_kB": max(sizes) / 1000 if sizes else None, "loop_rate_on_page": shown}
+            "max_kB": max(sizes) / 1000 if sizes else None, "loop_rate_on_page": shown,
+            "cpu_ms_per_update": {k: round(1000 * v / max(n, 1)) for k, v in used.items()}}
+
+
+def cpu_s(serve_pid: int) -> dict[str, float]:
+    """CPU seconds (user + system) used so far by the Chromium processes this
+    benchmark started and by the ``podwatch serve`` process (receiver and
+    dashboard server). CPU time, unlike wall time, hardly depends on what
+    else the machine is running, so these compare across runs."""
+    clock = os.sysconf("SC_CLK_TCK")
+    children: dict[int, list[int]] = {}
+    used: dict[int, float] = {}
+    names: dict[int, str] = {}
+    for entry in os.listdir("/proc"):
+        if not entry.isdigit():
+            continue
+        try:
+            stat = Path(f"/proc/{entry}/stat").read_text()
+        except OSError:
+            continue  # the process has ended
+        fields = stat[stat.rindex(")") + 2:].split()  # the name in parentheses may hold spaces
+        children.setdefault(int(fields[1]), []).append(int(entry))
+        used[int(entry)] = (int(fields[11]) + int(fields[12])) / clock
+        names[int(entry)] = stat[stat.index("(") + 1:stat.rindex(")")]
+    browser, stack = 0.0, [os.getpid()]
+    while stack:
+        pid = stack.pop()
+        stack.extend(children.get(pid, []))
+        if "chrom" in names.get(pid, ""):
+            browser += used[pid]
+    return {"chromium": browser, "serve": used.get(serve_pid, 0.0)}
 
 
 def main() -> None:

@@ -1,7 +1,7 @@
 """UDP ingest benchmark, run by hand (pytest does not collect bench_* files).
 
     .venv/bin/python tests/bench/bench_udp.py [--duration 30] [--robots 20] [--batch 16]
-        [--single-rates 10000,20000,...] [--batched-rates ...] [--only single|batched]
+        [--single-rates 10000,20000,...] [--batched-rates ...] [--only single|batched] [--record]
 
 A sender in another process streams wire messages to a live UdpReceiver,
 Hub and Pump on 127.0.0.1 at a target rate, rising step by step until a
@@ -16,16 +16,22 @@ clock; this adds the time spent waiting in the kernel's socket buffer).
 kernel dropped them; "lost" beyond that: still queued after the drain
 time). The 1-minute load average before and after each step shows what
 else was running. First single-message datagrams, then datagrams batching
---batch messages of one robot.
+--batch messages of one robot. With --record the hub also writes a recording
+(to a temporary file, deleted afterwards), as ``podwatch serve`` does by
+default. As in ``serve``, the heap is settled (receiver.live.settle_heap)
+once everything is set up.
 """
 
 from __future__ import annotations
 
 import argparse
+import gc
 import multiprocessing as mp
 import os
 import sys
+import tempfile
 import time
+from array import array
 from dataclasses import replace
 from pathlib import Path
 
@@ -33,8 +39,9 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from receiver.live import Pump  # noqa: E402
+from receiver.live import Pump, settle_heap  # noqa: E402
 from receiver.profile import load_profile  # noqa: E402
+from receiver.recording import RecordingWriter  # noqa: E402
 from receiver.session import Hub  # noqa: E402
 from receiver.transports.udp import UdpReceiver  # noqa: E402
 
@@ -92,15 +99,22 @@ def sender(address, rate_msgs: float, duration_s: float, robots: int, batch: int
     result.put((sent_datagrams, sent_datagrams * batch, time.perf_counter() - start))
 
 
-def run_step(rate: float, duration_s: float, robots: int, batch: int) -> dict:
+def run_step(rate: float, duration_s: float, robots: int, batch: int, record: bool = False) -> dict:
     base = load_profile(PROFILE)
     profiles = {robot_name(i): replace(base, name=robot_name(i)) for i in range(robots)}
-    hub = Hub(profiles, window_s=10.0, max_rows=100_000)
-    told: list[tuple[float, list[float], list[float]]] = []  # (when, rx of each, t of each)
+    recording = Path(tempfile.gettempdir()) / f"bench-udp-{os.getpid()}.jsonl"
+    recorder = RecordingWriter(recording, profiles.values()) if record else None
+    hub = Hub(profiles, recorder=recorder, window_s=10.0, max_rows=100_000)
+    # What the listener was told, kept in arrays: the garbage collector does not
+    # walk them, where a tuple and two lists per call grew every full collection
+    # by the end of a 30 s step. Arithmetic after the run.
+    told_when, told_rx, told_t = array("d"), array("d"), array("d")  # when per sample, rx, sender's t
 
     def on_processed(accepted, updates):
-        # Kept lean (the listener runs inside the measured path); arithmetic after the run.
-        told.append((time.time(), [s.rx for s, _ in accepted], [s.t for s, _ in accepted]))
+        when = time.time()
+        told_when.extend([when] * len(accepted))
+        told_rx.extend([s.rx for s, _ in accepted])
+        told_t.extend([s.t for s, _ in accepted])
 
     hub.add_listener(on_processed)
     load_before = os.getloadavg()[0]
@@ -108,6 +122,7 @@ def run_step(rate: float, duration_s: float, robots: int, batch: int) -> dict:
     pump = Pump(hub)
     pump.start()
     udp.start()
+    settle_heap()
     result = mp.Queue()
     proc = mp.Process(target=sender, args=(udp.address, rate, duration_s, robots, batch, result))
     proc.start()
@@ -121,10 +136,17 @@ def run_step(rate: float, duration_s: float, robots: int, batch: int) -> dict:
         time.sleep(0.05)
     udp.stop()
     pump.stop()
+    gc.unfreeze()  # the next step settles its own heap
+    recorded = None
+    if recorder is not None:
+        recorder.close()
+        recorded = recorder.message_count
+        recording.unlink()
     snap = hub.snapshot(time.time())
     taken = sum(s.messages for s in snap.values())
-    lat = np.concatenate([when - np.array(rx) for when, rx, _ in told]) if told else np.array([np.nan])
-    lat_send = np.concatenate([when - np.array(t) for when, _, t in told]) if told else np.array([np.nan])
+    when = np.frombuffer(told_when) if told_when else np.array([np.nan])
+    lat = when - (np.frombuffer(told_rx) if told_rx else np.nan)
+    lat_send = when - (np.frombuffer(told_t) if told_t else np.nan)
     return {
         "rate": rate,
         "achieved": sent_msgs / send_s,
@@ -139,20 +161,24 @@ def run_step(rate: float, duration_s: float, robots: int, batch: int) -> dict:
         "max_ms": float(np.max(lat) * 1e3),
         "p99_send_ms": float(np.percentile(lat_send, 99) * 1e3),
         "load": (load_before, os.getloadavg()[0]),
+        "recorded": recorded,
     }
 
 
-def ramp(title: str, rates, duration_s: float, robots: int, batch: int) -> None:
-    print(f"\n{title} ({robots} robots, {batch} message(s) per datagram, {duration_s:g} s per step)")
+def ramp(title: str, rates, duration_s: float, robots: int, batch: int, record: bool) -> None:
+    recording = ", recording" if record else ""
+    print(f"\n{title} ({robots} robots, {batch} message(s) per datagram, {duration_s:g} s per step{recording})")
     print(f"{'target msg/s':>12} {'sent msg/s':>11} {'sent':>9} {'taken':>9} {'lost':>6} {'datagrams':>10} {'recv dgram':>10} "
           f"{'p50 ms':>7} {'p99 ms':>7} {'max ms':>7} {'p99 send':>8} {'load 1m':>11}")
     best = None
     for rate in rates:
-        r = run_step(rate, duration_s, robots, batch)
+        r = run_step(rate, duration_s, robots, batch, record)
         print(f"{r['rate']:>12,.0f} {r['achieved']:>11,.0f} {r['sent']:>9,} {r['taken']:>9,} {r['lost']:>6,} "
               f"{r['datagrams']:>10,} {r['received']:>10,} {r['p50_ms']:>7.2f} {r['p99_ms']:>7.2f} {r['max_ms']:>7.1f} "
               f"{r['p99_send_ms']:>8.2f} {r['load'][0]:>5.2f}>{r['load'][1]:<5.2f}", flush=True)
-        if r["lost"] != 0 or r["errors"] != 0 or r["achieved"] < 0.95 * rate:
+        if r["recorded"] not in (None, r["taken"]):
+            print(f"recorded {r['recorded']:,} of {r['taken']:,} messages taken")
+        if r["lost"] != 0 or r["errors"] != 0 or r["achieved"] < 0.95 * rate or r["recorded"] not in (None, r["taken"]):
             break
         best = r
     if best is None:
@@ -173,12 +199,13 @@ def main() -> None:
     parser.add_argument("--single-rates", type=rates, default=SINGLE_RATES, help="comma-separated msg/s steps")
     parser.add_argument("--batched-rates", type=rates, default=BATCH_RATES, help="comma-separated msg/s steps")
     parser.add_argument("--only", choices=("single", "batched"), help="run one of the two ramps")
+    parser.add_argument("--record", action="store_true", help="the hub also writes a recording, as serve does")
     args = parser.parse_args()
     print(f"{os.cpu_count()} cores; 1-minute load average {os.getloadavg()[0]:.2f} at start")
     if args.only != "batched":
-        ramp("single-message datagrams", args.single_rates, args.duration, args.robots, 1)
+        ramp("single-message datagrams", args.single_rates, args.duration, args.robots, 1, args.record)
     if args.only != "single":
-        ramp("batched datagrams", args.batched_rates, args.duration, args.robots, args.batch)
+        ramp("batched datagrams", args.batched_rates, args.duration, args.robots, args.batch, args.record)
 
 
 if __name__ == "__main__":

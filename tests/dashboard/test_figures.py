@@ -20,8 +20,8 @@ REPORTED = np.array([[0.0, 0.0, 0.0], [1.0, 0.25, 0.1], [2.0, 1.0, math.pi], [3.
 
 
 def test_track_map_holds_both_paths_anchors_and_footprints():
-    fig = figures.track_map(RECOMPUTE[:, :2], REPORTED[:, :2], RECOMPUTE[:1, :2], (3.0, 1.0, 0.5), (3.0, 2.0, -3.5),
-                            144.0, 18.0, "in")
+    points = figures.TrackPoints(RECOMPUTE[:, :2], REPORTED[:, :2], RECOMPUTE[:1, :2], (3.0, 1.0, 0.5), (3.0, 2.0, -3.5))
+    fig = figures.track_map(points, 144.0, 18.0, "in")
     data = fig["data"]
     assert [d["name"] for d in data[:2]] == [figures.RECOMPUTE_NAME, figures.REPORTED_NAME]
     assert data[0]["line"]["color"] != data[1]["line"]["color"]
@@ -49,9 +49,8 @@ def test_footprint_is_a_square_of_the_given_side_with_its_arrow_along_the_headin
 
 
 def test_track_extension_appends_paths_and_replaces_footprints():
-    update, indices, keep = figures.track_extension(
-        RECOMPUTE[2:, :2], REPORTED[2:, :2], np.empty((0, 2)), (3.0, 1.0, 0.5), None, 18.0, 500
-    )
+    points = figures.TrackPoints(RECOMPUTE[2:, :2], REPORTED[2:, :2], np.empty((0, 2)), (3.0, 1.0, 0.5), None)
+    update, indices, keep = figures.track_extension(points, 18.0, 500)
     assert indices == [0, 1, 2, 3, 4]
     assert update["x"][0] == [2.0, 3.0] and update["y"][1] == [1.0, 2.0]
     assert update["x"][2] == []

@@ -45,12 +45,21 @@ def test_first_refresh_draws_everything_then_only_new_rows_follow(replay):
     replay.seek(5.0)
     # A budget this large keeps every new row (the budget spreads over the window).
     second = view.refresh(station, Settings(points=60_000), "practice-bot", 60.0, first.cursor)
-    assert not second.figures and set(second.extensions) == {"track", "poses", "errors", "loop"}
-    new = replay.hub.history("practice-bot", since_rx=first.cursor["rx"])
+    assert not second.figures and set(second.extensions) == {"track", "errors"} and second.histogram is None
+    new = replay.hub.history("practice-bot", since_rx=first.cursor["rx"][0])
     update, indices, keep = second.extensions["errors"]
     np.testing.assert_allclose(update["x"][0], np.round(new["rx"] - replay.origin, 3))
     np.testing.assert_allclose(update["y"][0], np.round(new["position_error"], 3))
-    assert second.cursor["rx"] == new["rx"][-1]
+    assert second.cursor["rx"] == [new["rx"][-1], first.cursor["rx"][1]]
+    # The next append goes to the other views, with every row since the first refresh.
+    replay.seek(5.5)
+    third = view.refresh(station, Settings(points=60_000), "practice-bot", 60.0, second.cursor)
+    assert set(third.extensions) == {"poses", "loop"} and third.histogram is not None
+    new = replay.hub.history("practice-bot", since_rx=first.cursor["rx"][1])
+    update, _, _ = third.extensions["poses"]
+    np.testing.assert_allclose(update["x"][0], np.round(new["rx"] - replay.origin, 3))
+    np.testing.assert_allclose(update["y"][0], np.round(new["pose"][:, 0], 3))
+    assert third.cursor["rx"] == [second.cursor["rx"][0], new["rx"][-1]]
 
 
 def test_new_rows_are_thinned_to_the_density_of_the_window(replay):
