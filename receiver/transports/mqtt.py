@@ -149,6 +149,8 @@ class MqttLink:
             finally:
                 if forwarding is not None:
                     forwarding.cancel()
+                    # Wait for it to end, so that no task is left pending when the loop stops.
+                    await asyncio.gather(forwarding, return_exceptions=True)
 
     async def _receive(self, client: aiomqtt.Client) -> None:
         ingest = self.hub.ingest
