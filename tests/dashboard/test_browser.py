@@ -8,81 +8,24 @@ Waits have deadlines for a loaded machine; nothing here checks speed.
 
 from __future__ import annotations
 
-import ipaddress
 import math
 import os
 import re
 import shutil
-import signal
-import subprocess
-import sys
 import time
-from pathlib import Path
-from urllib.parse import urlsplit
 
 import pytest
 
 from dashboard import ids
+from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_page
 
 sync_api = pytest.importorskip("playwright.sync_api")
 
-CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
-CHROMIUM_ARGS = [
-    "--no-sandbox", "--headless", "--disable-gpu", "--disable-background-networking",
-    "--disable-component-update", "--disable-sync", "--no-first-run",
-]
-ROOT = Path(__file__).resolve().parents[2]
-REVERSED = ROOT / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"
-ARTIFACTS = ROOT / "artifacts"
 README_SCREENSHOT = ROOT / "dashboard" / "screenshot.png"
 DEADLINE_S = 30.0  # for things to show up; not a speed check
 DIVERGED_IN = 10.0  # the reversed encoder puts the two poses this far apart within seconds
 
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
-
-
-def free_port() -> int:
-    import socket
-
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-@pytest.fixture
-def demo_url():
-    """URL of a running ``podwatch demo`` (stopped with Ctrl-C after the test)."""
-    port = free_port()
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "receiver.cli", "demo", "--duration", "120", "--seed", "3",
-         "--udp", "127.0.0.1:0", "--dashboard", f"127.0.0.1:{port}"],
-        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=ROOT,
-    )
-    url = None
-    deadline = time.monotonic() + DEADLINE_S
-    while url is None and time.monotonic() < deadline:
-        line = proc.stdout.readline()
-        if not line and proc.poll() is not None:
-            break
-        found = re.search(r"dashboard: (http://\S+)", line)
-        url = found.group(1) if found else None
-    if url is None:
-        proc.kill()
-        pytest.fail(f"podwatch demo did not print its URL: {proc.stdout.read()}")
-    yield url
-    proc.send_signal(signal.SIGINT)
-    out, _ = proc.communicate(timeout=20)
-    assert proc.returncode == 0, out
-    assert "Traceback" not in out
-
-
-def _loopback_only(route) -> None:
-    host = urlsplit(route.request.url).hostname or ""
-    try:
-        allowed = ipaddress.ip_address(host).is_loopback
-    except ValueError:
-        allowed = host == "localhost"
-    route.continue_() if allowed else route.abort()
 
 
 def number(page, component_id: str) -> float:
@@ -116,55 +59,48 @@ def replay_position(page) -> float:
 
 
 def test_live_page_shows_the_disagreement_then_a_replay_pauses_and_scrubs(demo_url):
-    with sync_api.sync_playwright() as p:
-        browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
-        try:
-            page = browser.new_page(viewport={"width": 1400, "height": 2000})
-            page.route("**/*", _loopback_only)
-            page.goto(demo_url)
+    with open_page(demo_url, 2000) as page:
 
-            # The disagreement readout grows past the threshold as the robot drives.
-            wait_for(lambda: number(page, ids.POSITION_NOW) > DIVERGED_IN, "the position disagreement to grow")
-            assert number(page, ids.POSITION_WORST) >= number(page, ids.POSITION_NOW) - 1e-9
-            assert page.inner_text(f"#{ids.POSITION_NOW}").endswith(" in")
+        # The disagreement readout grows past the threshold as the robot drives.
+        wait_for(lambda: number(page, ids.POSITION_NOW) > DIVERGED_IN, "the position disagreement to grow")
+        assert number(page, ids.POSITION_WORST) >= number(page, ids.POSITION_NOW) - 1e-9
+        assert page.inner_text(f"#{ids.POSITION_NOW}").endswith(" in")
 
-            # The track map holds two paths that have parted.
-            def diverged() -> bool:
-                ends = page.evaluate(PATH_ENDS)
-                return ends is not None and all(e["n"] > 50 for e in ends) and math.dist(
-                    (ends[0]["x"], ends[0]["y"]), (ends[1]["x"], ends[1]["y"])
-                ) > DIVERGED_IN
-            wait_for(diverged, "two diverging paths on the track map")
-            names = [e["name"] for e in page.evaluate(PATH_ENDS)]
-            assert names == ["podwatch recompute", "robot's own pose"]
+        # The track map holds two paths that have parted.
+        def diverged() -> bool:
+            ends = page.evaluate(PATH_ENDS)
+            return ends is not None and all(e["n"] > 50 for e in ends) and math.dist(
+                (ends[0]["x"], ends[0]["y"]), (ends[1]["x"], ends[1]["y"])
+            ) > DIVERGED_IN
+        wait_for(diverged, "two diverging paths on the track map")
+        names = [e["name"] for e in page.evaluate(PATH_ENDS)]
+        assert names == ["podwatch recompute", "robot's own pose"]
 
-            # The loop-timing panel shows the simulated 100 Hz loop.
-            wait_for(lambda: 90.0 < number(page, ids.LOOP_RATE) < 110.0, "a loop rate near 100 Hz")
-            assert 8.0 < number(page, ids.LOOP_MEAN) < 12.0
-            assert "live" in page.inner_text(f"#{ids.LINK_TABLE}")
+        # The loop-timing panel shows the simulated 100 Hz loop.
+        wait_for(lambda: 90.0 < number(page, ids.LOOP_RATE) < 110.0, "a loop rate near 100 Hz")
+        assert 8.0 < number(page, ids.LOOP_MEAN) < 12.0
+        assert "live" in page.inner_text(f"#{ids.LINK_TABLE}")
 
-            ARTIFACTS.mkdir(exist_ok=True)
-            page.wait_for_timeout(1500)  # let the last redraw settle for the picture
-            page.screenshot(path=str(ARTIFACTS / "dashboard.png"), full_page=True)
-            shutil.copyfile(ARTIFACTS / "dashboard.png", README_SCREENSHOT)
+        ARTIFACTS.mkdir(exist_ok=True)
+        page.wait_for_timeout(1500)  # let the last redraw settle for the picture
+        page.screenshot(path=str(ARTIFACTS / "dashboard.png"), full_page=True)
+        shutil.copyfile(ARTIFACTS / "dashboard.png", README_SCREENSHOT)
 
-            # A recording opened from the page replays; it can be paused and scrubbed.
-            page.fill(f"#{ids.RECORDING_PATH}", str(REVERSED))
-            page.click(f"#{ids.OPEN}")
-            wait_for(lambda: "of 10.0 s" in page.inner_text(f"#{ids.REPLAY_POSITION}"), "the replay bar")
-            page.click(f"#{ids.PLAY}")
-            wait_for(lambda: replay_position(page) > 1.0, "the replay to play")
-            page.click(f"#{ids.PAUSE}")
-            wait_for(lambda: "paused" in page.inner_text(f"#{ids.REPLAY_POSITION}"), "the replay to pause")
-            held = replay_position(page)
-            page.wait_for_timeout(1000)
-            assert replay_position(page) == held
+        # A recording opened from the page replays; it can be paused and scrubbed.
+        page.fill(f"#{ids.RECORDING_PATH}", str(REVERSED))
+        page.click(f"#{ids.OPEN}")
+        wait_for(lambda: "of 10.0 s" in page.inner_text(f"#{ids.REPLAY_POSITION}"), "the replay bar")
+        page.click(f"#{ids.PLAY}")
+        wait_for(lambda: replay_position(page) > 1.0, "the replay to play")
+        page.click(f"#{ids.PAUSE}")
+        wait_for(lambda: "paused" in page.inner_text(f"#{ids.REPLAY_POSITION}"), "the replay to pause")
+        held = replay_position(page)
+        page.wait_for_timeout(1000)
+        assert replay_position(page) == held
 
-            track = page.locator(f"#{ids.SCRUB} .dash-slider-track")
-            box = track.bounding_box()
-            track.click(position={"x": box["width"] * 0.7, "y": box["height"] / 2})
-            wait_for(lambda: 6.0 <= replay_position(page) <= 8.0, "the scrubber to move the replay to 7 s")
-            wait_for(lambda: number(page, ids.POSITION_NOW) > 0.0, "the readouts at the new position")
-            page.screenshot(path=str(ARTIFACTS / "dashboard-replay.png"), full_page=True)
-        finally:
-            browser.close()
+        track = page.locator(f"#{ids.SCRUB} .dash-slider-track")
+        box = track.bounding_box()
+        track.click(position={"x": box["width"] * 0.7, "y": box["height"] / 2})
+        wait_for(lambda: 6.0 <= replay_position(page) <= 8.0, "the scrubber to move the replay to 7 s")
+        wait_for(lambda: number(page, ids.POSITION_NOW) > 0.0, "the readouts at the new position")
+        page.screenshot(path=str(ARTIFACTS / "dashboard-replay.png"), full_page=True)

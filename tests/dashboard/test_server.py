@@ -13,7 +13,7 @@ from pathlib import Path
 import pytest
 
 from dashboard.server import is_loopback
-from tests.dashboard.test_browser import free_port
+from tests.dashboard.conftest import free_port
 
 ROOT = Path(__file__).resolve().parents[2]
 REVERSED = ROOT / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"

@@ -1,0 +1,85 @@
+"""The browser harness for the page's tests: Debian's Chromium driven by
+Playwright, talking to 127.0.0.0/8 only, and a running ``podwatch demo``."""
+
+from __future__ import annotations
+
+import ipaddress
+import re
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import time
+from contextlib import contextmanager
+from pathlib import Path
+from urllib.parse import urlsplit
+
+import pytest
+
+CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
+CHROMIUM_ARGS = [
+    "--no-sandbox", "--headless", "--disable-gpu", "--disable-background-networking",
+    "--disable-component-update", "--disable-sync", "--no-first-run",
+]
+ROOT = Path(__file__).resolve().parents[2]
+REVERSED = ROOT / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"
+ARTIFACTS = ROOT / "artifacts"
+DEMO_START_S = 30.0  # for the demo to print its URL on a loaded machine; not a speed check
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture
+def demo_url():
+    """URL of a running ``podwatch demo`` (stopped with Ctrl-C after the test)."""
+    port = free_port()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "receiver.cli", "demo", "--duration", "120", "--seed", "3",
+         "--udp", "127.0.0.1:0", "--dashboard", f"127.0.0.1:{port}"],
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=ROOT,
+    )
+    url = None
+    deadline = time.monotonic() + DEMO_START_S
+    while url is None and time.monotonic() < deadline:
+        line = proc.stdout.readline()
+        if not line and proc.poll() is not None:
+            break
+        found = re.search(r"dashboard: (http://\S+)", line)
+        url = found.group(1) if found else None
+    if url is None:
+        proc.kill()
+        pytest.fail(f"podwatch demo did not print its URL: {proc.stdout.read()}")
+    yield url
+    proc.send_signal(signal.SIGINT)
+    out, _ = proc.communicate(timeout=20)
+    assert proc.returncode == 0, out
+    assert "Traceback" not in out
+
+
+def _loopback_only(route) -> None:
+    host = urlsplit(route.request.url).hostname or ""
+    try:
+        allowed = ipaddress.ip_address(host).is_loopback
+    except ValueError:
+        allowed = host == "localhost"
+    route.continue_() if allowed else route.abort()
+
+
+@contextmanager
+def open_page(url: str, height: int):
+    """A headless Chromium page on ``url``, 1400 px wide; requests off loopback are aborted."""
+    sync_api = pytest.importorskip("playwright.sync_api")
+    with sync_api.sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        try:
+            page = browser.new_page(viewport={"width": 1400, "height": height})
+            page.route("**/*", _loopback_only)
+            page.goto(url)
+            yield page
+        finally:
+            browser.close()
