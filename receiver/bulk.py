@@ -3,8 +3,11 @@
 Owns the fast path of reading recordings: JSON lines -> validated samples
 (msgspec) -> numpy columns per robot, with bad lines counted by reason.
 Decoding and column building are most of the cost of `recompute`, and they
-split cleanly by block, so large inputs go to two worker processes. Never
-opens files itself: it is given blocks of complete lines.
+split cleanly by block, so large inputs go to two worker processes. A block
+is given either as bytes of complete lines or, for an uncompressed file, as
+a byte range of complete lines that the worker reads itself (nothing large
+crosses the pipe to it). Line numbers are counted by the caller, who sees
+the blocks in order.
 """
 
 from __future__ import annotations
@@ -13,7 +16,7 @@ import gc
 import multiprocessing
 import os
 import threading
-from collections import Counter, defaultdict
+from collections import Counter, defaultdict, deque
 from contextlib import contextmanager
 from multiprocessing.pool import Pool
 from operator import attrgetter
@@ -26,23 +29,28 @@ from receiver.recompute import Columns, columns_from_samples
 
 PARALLEL_FROM_BYTES = 48 * 1024 * 1024  # below this, starting workers costs more than it saves
 WORKERS = 2
+LOOKAHEAD = 2 * WORKERS  # blocks on the workers at a time
 _lines = msgspec.json.Decoder(Sample)
 
 
 class Decoded:
-    """Columns per robot in arrival order, and what was skipped and why."""
+    """One block's columns per robot in arrival order, and what was skipped and why.
+
+    ``first_failure`` holds the first bad line's index within the block (None
+    when it is not one line) with its failure; ``lines`` counts the block's lines.
+    """
 
     def __init__(self, ticks_length: dict[str, int]) -> None:
         self.ticks_length = dict(ticks_length)
         self.parts: dict[str, list[Columns]] = defaultdict(list)
         self.skipped: Counter = Counter()
-        self.first_failure: str | None = None
+        self.first_failure: tuple[int | None, Failure] | None = None
+        self.lines = 0
 
-    def fail(self, failure: Failure, line_no: int | None, count: int = 1) -> None:
+    def fail(self, failure: Failure, line_index: int | None, count: int = 1) -> None:
         self.skipped[failure.reason] += count
         if self.first_failure is None:
-            where = f"line {line_no}: " if line_no is not None else ""
-            self.first_failure = f"{where}{failure}"
+            self.first_failure = (line_index, failure)
 
     def add(self, samples: list[Sample]) -> None:
         robots = set(map(attrgetter("robot"), samples))
@@ -54,18 +62,20 @@ class Decoded:
                 groups[s.robot].append(s)
         for robot, group in groups.items():
             n_wheels = self.ticks_length.setdefault(robot, len(group[0].ticks))
-            if set(map(len, map(attrgetter("ticks"), group))) != {n_wheels}:
-                good = [s for s in group if len(s.ticks) == n_wheels]
-                self._wrong_length(robot, n_wheels, len(group) - len(good))
-                group = good
+            ticks = list(map(attrgetter("ticks"), group))
+            if set(map(len, ticks)) != {n_wheels}:
+                group = [s for s in group if len(s.ticks) == n_wheels]
+                self._wrong_length(robot, n_wheels, len(ticks) - len(group))
+                ticks = None
             if group:
-                self.parts[robot].append(columns_from_samples(group, n_wheels))
+                self.parts[robot].append(columns_from_samples(group, n_wheels, ticks))
 
     def _wrong_length(self, robot: str, n_wheels: int, count: int) -> None:
         detail = f"robot {robot!r} expects {n_wheels} counts per message"
         self.fail(Failure(Reason.WRONG_TICKS_LENGTH, detail), None, count)
 
-    def decode_block(self, block: bytes, first_line_no: int) -> None:
+    def decode_block(self, block: bytes) -> None:
+        self.lines = block.count(b"\n")
         try:
             samples = _lines.decode_lines(block)
         except msgspec.MsgspecError:
@@ -77,25 +87,25 @@ class Decoded:
             self.add(samples)
             return
         good: list[Sample] = []
-        for offset, line in enumerate(block.split(b"\n")):
+        for index, line in enumerate(block.split(b"\n")):
             if not line.strip():
                 continue
             result = decode_message(line)
             if isinstance(result, Sample):
                 good.append(result)
             else:
-                self.fail(result, first_line_no + offset)
+                self.fail(result, index)
         self.add(good)
 
 
-
 class Tally:
-    """Per-block results checked against each other: counts per message and skips."""
+    """Per-block results, taken in file order: counts per message, skips, line numbers."""
 
-    def __init__(self, ticks_length: dict[str, int]) -> None:
+    def __init__(self, ticks_length: dict[str, int], first_line_no: int = 1) -> None:
         self.ticks_length = dict(ticks_length)
         self.skipped: Counter = Counter()
         self.first_failure: str | None = None
+        self.line_no = first_line_no  # of the next block's first line
 
     def accept(self, block: Decoded) -> list[tuple[str, Columns]]:
         """The block's columns per robot, dropping any whose width disagrees with earlier blocks."""
@@ -108,15 +118,27 @@ class Tally:
                 else:
                     self.skipped[Reason.WRONG_TICKS_LENGTH] += len(part)
         self.skipped.update(block.skipped)
-        if self.first_failure is None:
-            self.first_failure = block.first_failure
+        if self.first_failure is None and block.first_failure is not None:
+            index, failure = block.first_failure
+            self.first_failure = f"{failure}" if index is None else f"line {self.line_no + index}: {failure}"
+        self.line_no += block.lines
         return kept
 
 
-def _decode_job(job: tuple[bytes, int, dict[str, int]]) -> Decoded:
-    block, first_line_no, ticks_length = job
+Block = bytes | tuple[str, int, int]  # complete lines, or (path, start, end) of an uncompressed file
+
+
+def read_range(path: str, start: int, end: int) -> bytes:
+    with open(path, "rb") as fh:
+        return os.pread(fh.fileno(), end - start, start)
+
+
+def _decode_job(job: tuple[Block, dict[str, int]]) -> Decoded:
+    block, ticks_length = job
+    if not isinstance(block, bytes):
+        block = read_range(*block)
     decoded = Decoded(ticks_length)
-    decoded.decode_block(block, first_line_no)
+    decoded.decode_block(block)
     return decoded
 
 
@@ -139,24 +161,31 @@ def worker_pool(path: str) -> Iterator[Pool | None]:
         yield pool
 
 
-def decode_blocks(
-    blocks: Iterable[tuple[bytes, int]], ticks_length: dict[str, int], pool: Pool | None
-) -> Iterator[Decoded]:
-    """Decode blocks of lines (each with the number of its first line), yielding results in order.
+def decode_blocks(blocks: Iterable[Block], ticks_length: dict[str, int], pool: Pool | None) -> Iterator[Decoded]:
+    """Decode blocks of complete lines, yielding results in order.
 
-    The garbage collector is paused meanwhile (and in the workers, which
-    inherit that): the decoded objects hold no cycles, and collection passes
-    over them cost more than the decode itself (measured in DESIGN.md).
+    With a pool, up to LOOKAHEAD blocks are on the workers at a time: enough
+    to keep both busy while the caller works on the last result, few enough
+    that memory stays bounded and that any other work the caller gives the
+    pool is not queued behind the whole file. The garbage collector is
+    paused meanwhile (and in the workers, which inherit that): the decoded
+    objects hold no cycles, and collection passes over them cost more than
+    the decode itself (measured in DESIGN.md).
     """
     gc_was_enabled = gc.isenabled()
     gc.disable()
     try:
-        if pool is not None:
-            jobs = ((block, line_no, ticks_length) for block, line_no in blocks)
-            yield from pool.imap(_decode_job, jobs)
-        else:
-            for block, line_no in blocks:
-                yield _decode_job((block, line_no, ticks_length))
+        jobs = ((block, ticks_length) for block in blocks)
+        if pool is None:
+            yield from map(_decode_job, jobs)
+            return
+        pending: deque = deque()
+        for job in jobs:
+            pending.append(pool.apply_async(_decode_job, (job,)))
+            if len(pending) > LOOKAHEAD:
+                yield pending.popleft().get()
+        while pending:
+            yield pending.popleft().get()
     finally:
         if gc_was_enabled:
             gc.enable()

@@ -8,11 +8,9 @@ lives in the modules this calls.
 from __future__ import annotations
 
 import argparse
-import asyncio
 import sys
 import time
-from collections import Counter, deque
-from multiprocessing.pool import Pool
+from collections import Counter
 from typing import Sequence
 
 import numpy as np
@@ -26,7 +24,6 @@ from receiver.paths import PATHS
 from receiver.profile import Profile, load_profile
 from receiver.recompute import Result, Tracker
 from receiver.recording import RecordingStream, RecordingWriter
-from receiver.replay import send_paced
 from receiver.simulate import FAULT_SYNTAX, parse_faults, simulate
 
 CSV_HEADER = (
@@ -124,31 +121,11 @@ def _csv_columns(robot: str, result: Result) -> list:
     ]
 
 
-class _CsvOut:
-    """Rows to the CSV file in order; formatted on the worker pool when there is one."""
-
-    def __init__(self, out, pool: Pool | None) -> None:
-        self.out, self.pool = out, pool
-        self.pending: deque = deque()
-
-    def write(self, columns: list) -> None:
-        if self.pool is None:
-            csvtable.write(self.out, columns)
-            return
-        self.pending.append(self.pool.apply_async(csvtable.format_rows, (columns,)))
-        while self.pending and self.pending[0].ready():
-            self.out.write(self.pending.popleft().get())
-
-    def finish(self) -> None:
-        while self.pending:
-            self.out.write(self.pending.popleft().get())
-
-
 def cmd_recompute(args: argparse.Namespace) -> int:
     """Stream the recording block by block: decode, recompute, write rows.
 
-    A large file is decoded, and its rows formatted, by two worker processes
-    while this one recomputes: recomputing itself is sequential per robot, but
+    A large file is decoded by two worker processes while this one
+    recomputes and writes the rows: recomputing is sequential per robot, but
     cheap. Each robot's rows are in arrival order; with several robots their
     rows interleave block by block.
     """
@@ -164,7 +141,6 @@ def cmd_recompute(args: argparse.Namespace) -> int:
         with bulk.worker_pool(args.recording) as pool, RecordingStream(args.recording, lengths, progress, pool) as rec:
             profiles = {**rec.profiles, **cli_profiles}
             out.write(CSV_HEADER)
-            rows = _CsvOut(out, pool)
             for robot, columns in rec:
                 if robot not in trackers:
                     profile = profiles.get(robot)
@@ -176,9 +152,8 @@ def cmd_recompute(args: argparse.Namespace) -> int:
                 tracker = trackers[robot]
                 if tracker is not None:
                     result = tracker.feed(columns)
-                    rows.write(_csv_columns(robot, result))
+                    csvtable.write(out, _csv_columns(robot, result))
                     totals[robot].add(result)
-            rows.finish()
     finally:
         progress.close()
         if args.out:
@@ -201,6 +176,10 @@ def cmd_simulate(args: argparse.Namespace) -> int:
     if args.to:
         # Streams in real time, paced by each message's simulated arrival.
         print(f"{profile.name}: {run.path}, streaming {len(run.samples)} messages to {args.to} ...", file=sys.stderr)
+        import asyncio
+
+        from receiver.replay import send_paced  # the network stack, only when sending
+
         sent = asyncio.run(send_paced(run.samples, np.asarray(run.arrival_s), args.to, token=args.token))
         print(f"{profile.name}: sent {sent} messages to {args.to}", file=sys.stderr)
         return 0

@@ -8,7 +8,6 @@ cli.py registers these with ``add_live_commands``.
 from __future__ import annotations
 
 import argparse
-import asyncio
 import logging
 import signal
 import sys
@@ -18,16 +17,13 @@ from pathlib import Path
 
 from receiver.errors import UsageError
 from receiver.paths import PATHS
-from receiver.live import ServeConfig, default_recording_path, parse_host_port, serve, summary_lines
 from receiver.profile import Profile, load_profile
-from receiver.recording import read_recording
-from receiver.replay import replay_into_hub, replay_to
-from receiver.session import Hub
-from receiver.transports.mqtt import DEFAULT_PREFIX
+from receiver.protocol import MQTT_PREFIX as DEFAULT_PREFIX
 from receiver.transports.udp import DEFAULT_UDP_HOST, DEFAULT_UDP_PORT
 
-# The dashboard (Dash, Plotly) is imported only by the commands that serve it,
-# so that the offline commands start quickly.
+# The receiver (asyncio, websockets, aiomqtt) and the dashboard (Dash,
+# Plotly) are imported by the commands that run them, so that the offline
+# commands start quickly: `recompute` on a large file is timed with its start.
 
 
 def _profiles(paths: list[str] | None) -> dict[str, Profile]:
@@ -39,6 +35,10 @@ def _say(line: str) -> None:
 
 
 def cmd_serve(args: argparse.Namespace) -> int:
+    import asyncio
+
+    from receiver.live import ServeConfig, default_recording_path, parse_host_port, serve
+
     logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
     udp = args.udp
     if udp is None and args.ws is None and args.mqtt is None:
@@ -71,6 +71,7 @@ class _Page:
 
     def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile]) -> None:
         from dashboard.settings import Settings, parse_length
+        from receiver.live import parse_host_port
 
         self.args = args
         self.profiles = profiles
@@ -109,7 +110,10 @@ class _Page:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
+    import asyncio
+
     from receiver.demo import DEMO_FAULTS, SimulatedRobot, demo_profile
+    from receiver.live import ServeConfig, parse_host_port, serve
     from receiver.simulate import parse_faults
 
     logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
@@ -146,6 +150,13 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 
 def cmd_replay(args: argparse.Namespace) -> int:
+    import asyncio
+
+    from receiver.live import summary_lines
+    from receiver.recording import read_recording
+    from receiver.replay import replay_into_hub, replay_to
+    from receiver.session import Hub
+
     if args.speed < 0:
         raise UsageError(f"--speed must be 0 (as fast as possible) or positive, got {args.speed}")
     cli_profiles = _profiles(args.profile)

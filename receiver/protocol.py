@@ -16,6 +16,7 @@ from typing import Annotated, Literal
 import msgspec
 
 PROTOCOL_VERSION = 1
+MQTT_PREFIX = "podwatch"  # topics <prefix>/<robot>/samples and <prefix>/<robot>/pose, prefix configurable
 MAX_MESSAGE_BYTES = 64 * 1024  # one datagram or frame; keeps a bad sender's cost bounded
 MAX_BATCH = 256
 # \Z, not $: Python's $ also matches before a trailing newline ("bot\n").

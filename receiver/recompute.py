@@ -57,37 +57,46 @@ def concat_columns(parts: list[Columns]) -> Columns:
     return Columns(*(np.concatenate([getattr(p, name) for p in parts]) for name in COLUMN_NAMES))
 
 
-def columns_from_samples(samples: list, n_wheels: int) -> Columns:
+def columns_from_samples(samples: list, n_wheels: int, ticks: list | None = None) -> Columns:
     """Columns from decoded ``protocol.Sample`` objects of one robot.
 
     attrgetter with np.fromiter, and chain for the nested lists, keep this at
-    about a tenth of the cost of np.array over lists of lists.
+    about a tenth of the cost of np.array over lists of lists. Optional
+    fields are first read as if always present (the common case); a None
+    stops np.fromiter at once and that column is read again with NaN for it.
+    ``ticks`` is the samples' ticks lists when the caller already has them.
     """
-    nan = float("nan")
     n = len(samples)
-
-    def floats(name: str) -> np.ndarray:
-        values = list(map(attrgetter(name), samples))
-        absent = values.count(None)
-        if absent == n:
-            return np.full(n, nan)
-        if absent:
-            values = [nan if v is None else v for v in values]
-        return np.fromiter(values, dtype=float, count=n)
-
-    poses = list(map(attrgetter("pose"), samples))
-    if None in poses:
-        poses = [(nan, nan, nan) if p is None else p for p in poses]
+    if ticks is None:
+        ticks = map(attrgetter("ticks"), samples)
+    try:
+        pose = np.fromiter(chain.from_iterable(map(attrgetter("pose"), samples)), dtype=float, count=3 * n)
+    except TypeError:  # a message without a pose
+        pose = np.fromiter(chain.from_iterable(p or _NO_POSE for p in map(attrgetter("pose"), samples)), dtype=float, count=3 * n)
     return Columns(
         seq=np.fromiter(map(attrgetter("seq"), samples), dtype=np.int64, count=n),
         t=np.fromiter(map(attrgetter("t"), samples), dtype=float, count=n),
-        ticks=np.fromiter(chain.from_iterable(map(attrgetter("ticks"), samples)), dtype=np.int64, count=n * n_wheels).reshape(n, n_wheels),
-        pose=np.fromiter(chain.from_iterable(poses), dtype=float, count=3 * n).reshape(n, 3),
-        imu=floats("imu"),
-        loop=floats("loop"),
+        ticks=np.fromiter(chain.from_iterable(ticks), dtype=np.int64, count=n * n_wheels).reshape(n, n_wheels),
+        pose=pose.reshape(n, 3),
+        imu=_optional_floats(samples, "imu"),
+        loop=_optional_floats(samples, "loop"),
         reset=np.fromiter(map(attrgetter("reset"), samples), dtype=bool, count=n),
-        rx=floats("rx"),
+        rx=_optional_floats(samples, "rx"),
     )
+
+
+def _optional_floats(samples: list, name: str) -> np.ndarray:
+    n = len(samples)
+    if n and getattr(samples[0], name) is not None:
+        try:
+            return np.fromiter(map(attrgetter(name), samples), dtype=float, count=n)
+        except TypeError:  # absent in some message
+            pass
+    values = list(map(attrgetter(name), samples))
+    absent = values.count(None)
+    if absent == n:
+        return np.full(n, _NAN)
+    return np.fromiter((_NAN if v is None else v for v in values), dtype=float, count=n)
 
 
 # Lookup tables indexed by Kind: np.isin costs tens of microseconds on the

@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import gzip
 import itertools
+import mmap
+import os
 import zlib
 from collections import Counter
 from dataclasses import dataclass, field
@@ -120,21 +122,22 @@ def _parse_header(line: bytes, path: str) -> tuple[str | None, dict[str, Profile
 class _Lines:
     """Blocks of complete lines from a (decompressed) stream, header taken off.
 
-    Iterating yields (block, line number of its first line); afterwards
-    ``header``, ``tail`` (an unterminated last line) and ``cut`` (the error
-    that ended a compressed stream early) tell what else was found.
+    Iterating yields blocks of bytes; ``done_at`` gets the raw file offset
+    reached by each block (for progress). Afterwards ``header``, ``tail`` (an
+    unterminated last line) and ``cut`` (the error that ended a compressed
+    stream early) tell what else was found.
     """
 
-    def __init__(self, stream: BinaryIO, raw: BinaryIO, path: str, progress: Progress | None) -> None:
-        self.stream, self.raw, self.path, self.progress = stream, raw, path, progress
-        self.total = Path(path).stat().st_size
+    def __init__(self, stream: BinaryIO, raw: BinaryIO, path: str) -> None:
+        self.stream, self.raw, self.path = stream, raw, path
         self.header: tuple[str | None, dict[str, Profile]] | None = None
+        self.first_line_no = 1
+        self.done_at: list[int] = []
         self.tail = b""
         self.cut: Exception | None = None
         self.seen_any = False
 
-    def __iter__(self):
-        line_no = 1
+    def __iter__(self) -> Iterator[bytes]:
         pending = b""
         first = True
         while True:
@@ -157,16 +160,58 @@ class _Lines:
                 head, _, rest = body.partition(b"\n")
                 self.header = _parse_header(head, self.path)
                 if self.header is not None:
-                    body, line_no = rest, 2
-            if self.progress is not None:
-                self.progress(self.raw.tell(), self.total)
-            yield body, line_no
-            line_no += body.count(b"\n")
-        if first and pending.strip():
-            self.header = _parse_header(pending, self.path)
-            if self.header is not None:
-                raise RecordingError(f"{self.path}: the recording has a header but no messages")
-        self.tail = pending
+                    body, self.first_line_no = rest, 2
+            self.done_at.append(self.raw.tell())
+            yield body
+        if first:
+            self.tail = _check_lone_line(pending, self.path)
+        else:
+            self.tail = pending
+
+
+class _Ranges:
+    """Byte ranges of complete lines of an uncompressed file, for workers that read them themselves.
+
+    The same findings as _Lines (header, tail, done_at), from a memory map:
+    only the newlines at block boundaries are looked for here.
+    """
+
+    def __init__(self, raw: BinaryIO, path: str) -> None:
+        self.raw, self.path = raw, path
+        self.header: tuple[str | None, dict[str, Profile]] | None = None
+        self.first_line_no = 1
+        self.done_at: list[int] = []
+        self.tail = b""
+        self.cut: Exception | None = None
+        self.seen_any = os.fstat(raw.fileno()).st_size > 0
+
+    def __iter__(self) -> Iterator[tuple[str, int, int]]:
+        if not self.seen_any:
+            return
+        with mmap.mmap(self.raw.fileno(), 0, access=mmap.ACCESS_READ) as mm:
+            last = mm.rfind(b"\n") + 1  # the end of the last complete line
+            if not last:
+                self.tail = _check_lone_line(mm[:], self.path)
+                return
+            self.tail = mm[last:]
+            start = mm.find(b"\n") + 1
+            self.header = _parse_header(mm[: start - 1], self.path)
+            if self.header is None:
+                start = 0
+            else:
+                self.first_line_no = 2
+            while start < last:
+                end = mm.find(b"\n", min(start + _CHUNK_BYTES, last) - 1) + 1
+                self.done_at.append(end)
+                yield self.path, start, end
+                start = end
+
+
+def _check_lone_line(line: bytes, path: str) -> bytes:
+    """A file of one unterminated line: refused if it is a header, else kept as the tail."""
+    if line.strip() and _parse_header(line, path) is not None:
+        raise RecordingError(f"{path}: the recording has a header but no messages")
+    return line
 
 
 class RecordingStream:
@@ -188,8 +233,12 @@ class RecordingStream:
     ) -> None:
         self.path = str(path)
         self._pool = pool  # decode on these workers (bulk.worker_pool) when given
+        self._progress = progress
         self._stream, self._raw = _open(self.path)
-        self._lines = _Lines(self._stream, self._raw, self.path, progress)
+        if pool is not None and self._stream is self._raw:  # uncompressed: the workers read their own ranges
+            self._lines: _Lines | _Ranges = _Ranges(self._raw, self.path)
+        else:
+            self._lines = _Lines(self._stream, self._raw, self.path)
         self._blocks = iter(self._lines)
         try:
             self._first = next(self._blocks, None)
@@ -201,7 +250,7 @@ class RecordingStream:
         self.profiles: dict[str, Profile] = header[1] if header else {}
         lengths = {name: len(p.wheels) for name, p in self.profiles.items()}
         lengths.update(ticks_length or {})
-        self._tally = bulk.Tally(lengths)
+        self._tally = bulk.Tally(lengths, self._lines.first_line_no)
         self.warnings: list[str] = []
 
     @property
@@ -209,13 +258,17 @@ class RecordingStream:
         return self._tally.skipped
 
     def __iter__(self) -> Iterator[tuple[str, Columns]]:
-        blocks = itertools.chain([self._first] if self._first else [], self._blocks)
+        blocks = itertools.chain([] if self._first is None else [self._first], self._blocks)
         found = False
-        for decoded in bulk.decode_blocks(blocks, self._tally.ticks_length, self._pool):
+        lines = self._lines
+        total = os.fstat(self._raw.fileno()).st_size
+        decoded_blocks = bulk.decode_blocks(blocks, self._tally.ticks_length, self._pool)
+        for k, decoded in enumerate(decoded_blocks):
+            if self._progress is not None:
+                self._progress(lines.done_at[k], total)
             for piece in self._tally.accept(decoded):
                 found = True
                 yield piece
-        lines = self._lines
         if lines.tail.strip():
             result = decode_message(lines.tail)
             if isinstance(result, Sample):

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from receiver import bulk, recording
+from receiver.errors import RecordingError
 from receiver.recording import read_recording
 from tests.synthetic import constant_twist_messages, write_recording
 
@@ -31,6 +33,7 @@ def test_parallel_equals_sequential(tmp_path, monkeypatch, practice_profile, met
     assert sequential.skipped == parallel.skipped
     assert sum(sequential.skipped.values()) == 3
     assert sequential.warnings == parallel.warnings
+    assert "first: line 301: not_json" in sequential.warnings[0]
     assert set(sequential.robots) == set(parallel.robots) == {"practice-bot", "practice-bot-metric"}
     for robot, cols in sequential.robots.items():
         other = parallel.robots[robot]
@@ -47,6 +50,50 @@ def test_recompute_on_workers_writes_the_same_csv(tmp_path, monkeypatch, capsys,
     assert main(["recompute", str(path), "--out", str(tmp_path / "one.csv")]) == 0
     monkeypatch.setattr(bulk, "PARALLEL_FROM_BYTES", 0)
     assert main(["recompute", str(path), "--out", str(tmp_path / "two.csv")]) == 0
-    one, two = (tmp_path / "one.csv").read_bytes(), (tmp_path / "two.csv").read_bytes()
-    assert one == two and one.count(b"\n") == 1 + 2 * 1001
-    capsys.readouterr()
+    one, two = ((tmp_path / name).read_bytes().splitlines() for name in ("one.csv", "two.csv"))
+    assert len(one) == len(two) == 1 + 2 * 1001
+    # Each robot's rows are the same, in the same order; how two robots'
+    # rows interleave follows the block boundaries, which differ.
+    for robot in (b"practice-bot,", b"practice-bot-metric,"):
+        assert [r for r in one if r.startswith(robot)] == [r for r in two if r.startswith(robot)]
+    assert "first: line 301: not_json" in capsys.readouterr().err
+
+
+def _outcome(path):
+    """What reading a file gives: its messages, skips and warnings, or the error's text."""
+    try:
+        data = read_recording(path)
+    except RecordingError as exc:
+        return str(exc)
+    columns = {robot: (cols.seq.tolist(), cols.ticks.tolist()) for robot, cols in data.robots.items()}
+    return columns, dict(data.skipped), data.warnings, data.created, sorted(data.profiles)
+
+
+EDGE_CASES = {
+    "truncated last line": lambda good, header: header + good + good[:25],
+    "no header, truncated last line": lambda good, header: good * 3 + good[:-1],
+    "header only": lambda good, header: header,
+    "header without its newline": lambda good, header: header[:-1],
+    "one bare message without a newline": lambda good, header: good[:-1],
+    "blank lines between": lambda good, header: header + b"\n\n" + good + b"   \n" + good,
+    "nothing but blank lines": lambda good, header: b"\n \n\n",
+    "empty file": lambda good, header: b"",
+    "bad line at a block boundary": lambda good, header: header + good * 40 + b"{nope\n" + good * 40,
+}
+
+
+@pytest.mark.parametrize("case", sorted(EDGE_CASES))
+def test_workers_reading_byte_ranges_find_what_one_process_finds(tmp_path, monkeypatch, practice_profile, case):
+    """The byte-range reader (workers read their own blocks) against the sequential line reader."""
+    messages = constant_twist_messages(practice_profile, seconds=0.02)[:1]
+    good = write_recording(tmp_path / "one.jsonl", messages).read_bytes()
+    header = write_recording(tmp_path / "h.jsonl", [], [practice_profile]).read_bytes()  # the header line
+    path = tmp_path / "case.jsonl"
+    path.write_bytes(EDGE_CASES[case](good, header))
+    monkeypatch.setattr(recording, "_CHUNK_BYTES", 1000)  # block boundaries inside the lines
+    sequential = _outcome(path)
+    monkeypatch.setattr(bulk, "PARALLEL_FROM_BYTES", 0)
+    with bulk.worker_pool(str(path)) as pool:
+        assert pool is not None or path.stat().st_size == 0
+    parallel = _outcome(path)
+    assert parallel == sequential

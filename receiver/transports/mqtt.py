@@ -21,10 +21,10 @@ import aiomqtt
 import msgspec
 from paho.mqtt.subscribeoptions import SubscribeOptions
 
-from receiver.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, Sample, decode
+from receiver.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, MQTT_PREFIX, Sample, decode
 from receiver.session import Hub, PoseUpdate
 
-DEFAULT_PREFIX = "podwatch"
+DEFAULT_PREFIX = MQTT_PREFIX
 DEFAULT_MQTT_PORT = 1883  # IANA port for MQTT
 FORWARD_INTERVAL_S = 0.05
 RECONNECT_DELAY_S = 1.0
