@@ -157,7 +157,9 @@ def worker_pool(path: str) -> Iterator[Pool | None]:
     if not wanted:
         yield None
         return
-    with multiprocessing.get_context("fork").Pool(WORKERS) as pool:
+    # The workers only decode: with no reference cycles to find, the garbage
+    # collector would only walk the decoded lists again and again.
+    with multiprocessing.get_context("fork").Pool(WORKERS, initializer=gc.disable) as pool:
         yield pool
 
 
