@@ -166,6 +166,8 @@ def decode(data: bytes) -> tuple[list[Sample], list[Failure]]:
     except (msgspec.MsgspecError, RecursionError) as exc:
         return _decode_items(data, exc)
     if isinstance(decoded, Sample):
+        if decoded.robot in _good_names:  # the usual single message: a fifth of split_bad_names' cost
+            return [decoded], []
         return split_bad_names([decoded])
     if len(decoded) > MAX_BATCH:
         return [], [Failure(Reason.TOO_LARGE, f"batch of {len(decoded)} messages, limit {MAX_BATCH}")]

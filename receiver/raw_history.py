@@ -44,14 +44,6 @@ class _RobotRaw:
         self.floats: list[float] = []  # pending rows, as _FLOATS
         self.ints: list[int] = []  # their seq, reset, then the counts
 
-    def add(self, s: Sample) -> None:
-        pose = s.pose if s.pose is not None else _NAN3
-        self.floats += (
-            math.nan if s.rx is None else s.rx, s.t, pose[0], pose[1], pose[2],
-            math.nan if s.imu is None else s.imu, math.nan if s.loop is None else s.loop,
-        )
-        self.ints += (s.seq, s.reset, *s.ticks)
-
     def flush(self) -> None:
         if not self.floats:
             return
@@ -78,15 +70,23 @@ class RawHistory:
         self._lock = threading.Lock()
 
     def __call__(self, accepted: list[tuple[Sample, str]], _updates: object = None) -> None:
+        nan, robots = math.nan, self._robots
         with self._lock:
-            for sample, _source in accepted:
-                raw = self._robots.get(sample.robot)
-                if raw is None or raw.n_wheels != len(sample.ticks):
+            for s, _source in accepted:
+                raw = robots.get(s.robot)
+                if raw is None or raw.n_wheels != len(s.ticks):
                     # A new robot, or one the hub now expects another number
                     # of counts from: its old rows cannot share columns.
-                    raw = self._robots[sample.robot] = _RobotRaw(len(sample.ticks), self.window_s, self.max_rows)
-                raw.add(sample)
-                if len(raw.floats) >= _FLUSH_ROWS * _FLOATS_PER_ROW:
+                    raw = robots[s.robot] = _RobotRaw(len(s.ticks), self.window_s, self.max_rows)
+                # the row, as _FLOATS and then seq, reset and the counts (inline: this runs per sample)
+                pose = s.pose if s.pose is not None else _NAN3
+                floats = raw.floats
+                floats += (
+                    nan if s.rx is None else s.rx, s.t, pose[0], pose[1], pose[2],
+                    nan if s.imu is None else s.imu, nan if s.loop is None else s.loop,
+                )
+                raw.ints += (s.seq, s.reset, *s.ticks)
+                if len(floats) >= _FLUSH_ROWS * _FLOATS_PER_ROW:
                     raw.flush()
 
     def robots(self) -> list[str]:
@@ -100,7 +100,8 @@ class RawHistory:
             if raw is None:
                 return None
             raw.flush()
-            return float(raw.ring.view()["rx"][-1]) if len(raw.ring) else None
+            newest = raw.ring.newest()
+            return None if newest is None else float(newest["rx"])
 
     def columns(self, robot: str, since_rx: float | None = None) -> Columns | None:
         """Copies of the robot's samples in arrival order, with ``since_rx`` only
@@ -110,8 +111,7 @@ class RawHistory:
             if raw is None:
                 return None
             raw.flush()
-            rows = raw.ring.view()
-            first = 0 if since_rx is None else int(np.searchsorted(rows["rx"], since_rx, side="right"))
-            c = {name: column[first:].copy() for name, column in rows.items()}
+            held = raw.ring.cut(since_rx)
+        c = held.rows()  # after the lock: the receive loop's listener call never waits for this copy
         return Columns(seq=c["seq"], t=c["t"], ticks=c["ticks"], pose=c["pose"], imu=c["imu"], loop=c["loop"],
                        reset=c["reset"], rx=c["rx"])

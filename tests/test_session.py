@@ -4,9 +4,12 @@ link states, ring buffers, and poses equal to the offline recompute."""
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from receiver.protocol import Reason, Sample, decode
 from receiver.recompute import Tracker, columns_from_samples
@@ -127,6 +130,25 @@ def test_link_states_follow_the_transition_table(practice_profile):
     assert (LinkState.WAITING, LinkEvent.SILENCE) not in TRANSITIONS
 
 
+def test_a_silent_robot_goes_quiet_while_another_keeps_sending(practice_profile):
+    """``process`` skips the walk over every session while no live robot can
+    have been silent long enough; the one that has still goes QUIET, at the
+    first ``process`` after quiet_after_s, as ``tick`` would move it."""
+    other = replace(practice_profile, name="other-bot")
+    hub = Hub({practice_profile.name: practice_profile, other.name: other}, quiet_after_s=1.0)
+    messages = constant_twist_messages(practice_profile, seconds=3.0)  # 50 Hz
+    for k, m in enumerate(messages):
+        rx = RX0 + 0.02 * k
+        hub.ingest(*decode(json.dumps(m).encode()), rx, "test")
+        if k < 10:  # other-bot sends for the first 0.2 s only
+            hub.ingest(*decode(json.dumps(dict(m, robot=other.name)).encode()), rx, "test")
+        hub.process(rx)
+        state = hub.snapshot(rx)[other.name].state
+        # other-bot's last message came at RX0 + 0.18
+        assert state is (LinkState.QUIET if rx - (RX0 + 0.18) > 1.0 else LinkState.LIVE), k
+    assert hub.snapshot(rx)[practice_profile.name].state is LinkState.LIVE
+
+
 def test_rate_and_jitter(practice_profile):
     messages = constant_twist_messages(practice_profile, rate_hz=50.0, seconds=2.0)
     hub = Hub({practice_profile.name: practice_profile})
@@ -142,20 +164,66 @@ def test_rate_and_jitter(practice_profile):
 
 
 def test_ring_buffer_keeps_the_window_and_stays_bounded():
-    ring = RingBuffer({"rx": (float, None), "v": (float, 2)}, window_s=10.0, max_rows=5000)
+    ring = RingBuffer({"rx": (float, None), "v": (float, 2)}, window_s=10.0, max_rows=5000, block_rows=256)
     for start in range(0, 20_000, 100):  # 100 rows per second, for 200 s
         rx = np.arange(start, start + 100) / 100.0
         ring.append(rx=rx, v=np.column_stack([rx, -rx]))
-    rows = ring.view()
-    assert ring.capacity < 5000  # grew only as far as the 10 s window needed
+    rows = ring.rows()
+    # grew only as far as the 10 s window needed: its 1000 rows, a block that
+    # is partly outside it and the block being filled
+    assert ring.capacity <= 1000 + 2 * 256
     assert rows["rx"][-1] == 199.99 and rows["rx"][0] <= 199.99 - 10.0
     assert np.all(np.diff(rows["rx"]) > 0)
     np.testing.assert_array_equal(rows["v"][:, 1], -rows["rx"])
 
 
 def test_ring_buffer_overwrites_at_its_cap():
-    ring = RingBuffer({"rx": (float, None)}, window_s=1e9, max_rows=3000)
+    ring = RingBuffer({"rx": (float, None)}, window_s=1e9, max_rows=3000, block_rows=1024)
     ring.append(rx=np.arange(10_000.0))
     ring.append(rx=np.arange(10_000.0, 10_050.0))
-    assert ring.capacity == 3000 and len(ring) == 3000
-    np.testing.assert_array_equal(ring.view()["rx"], np.arange(7050.0, 10_050.0))
+    assert len(ring) == 3000 and ring.capacity <= 3000 + 1024
+    np.testing.assert_array_equal(ring.rows()["rx"], np.arange(7050.0, 10_050.0))
+
+
+@settings(max_examples=80, deadline=None)
+@given(
+    pieces=st.lists(st.tuples(st.integers(0, 700), st.floats(0.0, 3.0)), min_size=1, max_size=40),
+    window_s=st.floats(0.5, 50.0),
+    max_rows=st.integers(1, 3000),
+    block_rows=st.integers(1, 600),
+)
+def test_ring_buffer_against_a_plain_list(pieces, window_s, max_rows, block_rows):
+    """Appends of any size keep exactly the newest rows: every row of the
+    window up to the cap, never more than the cap, in blocks that are all in
+    use. Reads since an rx and of the newest row agree with the plain list,
+    and a cut still reads what it held after any later appends."""
+    ring = RingBuffer({"rx": (float, None), "seq": (np.int64, None), "v": (float, 3)}, window_s, max_rows, block_rows)
+    rx_all: list[float] = []
+    cuts = []  # (a cut taken after each append, the seq it held then)
+    clock = 0.0
+    for n, dt in pieces:
+        rx = clock + dt * np.arange(1, n + 1) / max(n, 1)
+        clock = float(rx[-1]) if n else clock
+        seq = np.arange(len(rx_all), len(rx_all) + n)
+        ring.append(rx=rx, seq=seq, v=np.column_stack([seq, -seq, 2 * seq]).astype(float))
+        rx_all += rx.tolist()
+        rows = ring.rows()
+        kept = len(rows["rx"])
+        assert kept == len(ring) <= max_rows
+        np.testing.assert_array_equal(rows["seq"], np.arange(len(rx_all) - kept, len(rx_all)))
+        np.testing.assert_array_equal(rows["rx"], rx_all[len(rx_all) - kept :])
+        np.testing.assert_array_equal(rows["v"][:, 2], 2.0 * rows["seq"])
+        cuts.append((ring.cut(), rows["seq"]))
+        if rx_all:
+            in_window = sum(r >= rx_all[-1] - window_s for r in rx_all)
+            assert kept >= min(in_window, max_rows)
+            assert ring.capacity < kept + 2 * min(block_rows, max_rows)  # no empty block held
+            newest = ring.newest()
+            assert newest["seq"] == len(rx_all) - 1 and newest["v"].tolist() == [len(rx_all) - 1, 1 - len(rx_all), 2 * len(rx_all) - 2]
+            since = rx_all[-1] - window_s / 3
+            np.testing.assert_array_equal(ring.rows(since, names=("seq",))["seq"], rows["seq"][rows["rx"] > since])
+            assert ring.first_after(since) == int(np.count_nonzero(rows["rx"] <= since))
+    assert ring.rows(clock + 1.0)["v"].shape == (0, 3)
+    for cut, seq in cuts:  # later appends never wrote over what a cut holds
+        np.testing.assert_array_equal(cut.rows(("seq",))["seq"], seq)
+        np.testing.assert_array_equal(cut.rows()["v"][:, 1], -seq)

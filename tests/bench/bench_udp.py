@@ -2,6 +2,8 @@
 
     .venv/bin/python tests/bench/bench_udp.py [--duration 30] [--robots 20] [--batch 16]
         [--single-rates 10000,20000,...] [--batched-rates ...] [--only single|batched] [--record]
+        [--compare OTHER_TREE]
+    .venv/bin/python tests/bench/bench_udp.py --only cpu [--compare OTHER_TREE] [--profile]
 
 A sender in another process streams wire messages to a live UdpReceiver,
 Hub and Pump on 127.0.0.1 at a target rate, rising step by step until a
@@ -14,20 +16,45 @@ from the moment the sender sent it (its ``t`` carries the sender's wall
 clock; this adds the time spent waiting in the kernel's socket buffer).
 "recv dgram" counts datagrams the receive loop got (fewer than sent: the
 kernel dropped them; "lost" beyond that: still queued after the drain
-time). The 1-minute load average before and after each step shows what
-else was running. First single-message datagrams, then datagrams batching
+time). "rx CPU" is the receive thread's own CPU time (its thread clock)
+per datagram received, and "per pass" the datagrams its loop took per pass.
+The 1-minute load average before and after each step shows what else was
+running. First single-message datagrams, then datagrams batching
 --batch messages of one robot. With --record the hub also writes a recording
 (to a temporary file, deleted afterwards), as ``podwatch serve`` does by
 default. As in ``serve``, the heap is settled (receiver.live.settle_heap)
-once everything is set up.
+once everything is set up. With ``--compare DIR`` each step runs twice, in
+turns, in fresh processes: with this tree's ``receiver`` package and with
+the one under DIR (a copy of another tree, say ``git archive HEAD receiver``
+unpacked there).
+
+``--only cpu`` measures instead the receive thread's CPU time per datagram
+(time.thread_time, so other processes on the machine do not count) through
+exactly what the loop runs on each pass (``UdpReceiver.one_pass``: the
+receive calls, decode, ``Hub.ingest`` and ``Hub.process``), with ``serve``'s
+defaults (a recording, the dashboard's raw-history listener, a 600 s
+window). Datagrams are put on a loopback socket just before each pass (pass
+sizes 1, 4 and 16 datagrams; --robots robots in turn), outside the timing.
+It leaves out what waiting costs: a thread that sleeps or blocks and wakes
+again spent about 20 us of CPU on that here, and ran its next work slower;
+the ramps' "rx CPU" counts everything. With ``--compare DIR`` the
+measurement runs in turns with both packages, each in its own process, and
+both are printed side by side. ``--profile`` prints cProfile's top
+functions for this tree instead.
 """
 
 from __future__ import annotations
 
 import argparse
+import cProfile
 import gc
+import json
 import multiprocessing as mp
 import os
+import pstats
+import select
+import socket
+import subprocess
 import sys
 import tempfile
 import time
@@ -41,14 +68,20 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from receiver.live import Pump, settle_heap  # noqa: E402
 from receiver.profile import load_profile  # noqa: E402
+from receiver.raw_history import RawHistory  # noqa: E402
 from receiver.recording import RecordingWriter  # noqa: E402
 from receiver.session import Hub  # noqa: E402
 from receiver.transports.udp import UdpReceiver  # noqa: E402
 
-PROFILE = Path(__file__).resolve().parents[2] / "replay_fixtures" / "practice-bot.toml"
+_HERE = str(Path(__file__).resolve().parents[2])
+PROFILE = Path(_HERE) / "replay_fixtures" / "practice-bot.toml"
 SINGLE_RATES = (10_000, 20_000, 30_000, 40_000, 60_000, 80_000, 120_000, 160_000)
 BATCH_RATES = (20_000, 40_000, 80_000, 160_000, 320_000, 640_000)
 DRAIN_S = 3.0  # after the sender stops, time for the receiver to catch up
+CPU_PASS_SIZES = (1, 4, 16)  # datagrams waiting per pass of the receive loop
+CPU_WARMUP = 2_000  # datagrams through each pipeline before the measurement
+CPU_DATAGRAMS = 10_000  # measured datagrams per pass size
+CPU_ROUNDS = 5  # turns per tree with --compare; the least and the median are printed
 
 
 def robot_name(i: int) -> str:
@@ -122,6 +155,8 @@ def run_step(rate: float, duration_s: float, robots: int, batch: int, record: bo
     pump = Pump(hub)
     pump.start()
     udp.start()
+    udp_cpu = time.pthread_getcpuclockid(udp._thread.ident)  # the receive thread's own CPU clock
+    udp_cpu_start = time.clock_gettime(udp_cpu)
     settle_heap()
     result = mp.Queue()
     proc = mp.Process(target=sender, args=(udp.address, rate, duration_s, robots, batch, result))
@@ -134,6 +169,7 @@ def run_step(rate: float, duration_s: float, robots: int, batch: int, record: bo
         if taken >= sent_msgs:
             break
         time.sleep(0.05)
+    udp_cpu_s = time.clock_gettime(udp_cpu) - udp_cpu_start
     udp.stop()
     pump.stop()
     gc.unfreeze()  # the next step settles its own heap
@@ -162,20 +198,33 @@ def run_step(rate: float, duration_s: float, robots: int, batch: int, record: bo
         "p99_send_ms": float(np.percentile(lat_send, 99) * 1e3),
         "load": (load_before, os.getloadavg()[0]),
         "recorded": recorded,
+        "rx_cpu_us": udp_cpu_s * 1e6 / max(udp.datagrams, 1),
+        "per_pass": udp.datagrams / udp.passes if getattr(udp, "passes", 0) else float("nan"),
     }
 
 
-def ramp(title: str, rates, duration_s: float, robots: int, batch: int, record: bool) -> None:
+def ramp(
+    title: str, rates, duration_s: float, robots: int, batch: int, record: bool, compare: str | None = None
+) -> None:
     recording = ", recording" if record else ""
     print(f"\n{title} ({robots} robots, {batch} message(s) per datagram, {duration_s:g} s per step{recording})")
+    print("rx CPU: the receive thread's CPU time per datagram received, us; per pass: datagrams per pass of its loop")
+    print(f"{'tree':>12} " if compare else "", end="")
     print(f"{'target msg/s':>12} {'sent msg/s':>11} {'sent':>9} {'taken':>9} {'lost':>6} {'datagrams':>10} {'recv dgram':>10} "
-          f"{'p50 ms':>7} {'p99 ms':>7} {'max ms':>7} {'p99 send':>8} {'load 1m':>11}")
+          f"{'p50 ms':>7} {'p99 ms':>7} {'max ms':>7} {'p99 send':>8} {'rx CPU':>6} {'per pass':>8} {'load 1m':>11}")
     best = None
     for rate in rates:
-        r = run_step(rate, duration_s, robots, batch, record)
-        print(f"{r['rate']:>12,.0f} {r['achieved']:>11,.0f} {r['sent']:>9,} {r['taken']:>9,} {r['lost']:>6,} "
-              f"{r['datagrams']:>10,} {r['received']:>10,} {r['p50_ms']:>7.2f} {r['p99_ms']:>7.2f} {r['max_ms']:>7.1f} "
-              f"{r['p99_send_ms']:>8.2f} {r['load'][0]:>5.2f}>{r['load'][1]:<5.2f}", flush=True)
+        args = [rate, duration_s, robots, batch, record]
+        # with --compare, the other tree's step right after this tree's, each in its own process
+        steps = {"this tree": _in_tree(_HERE, "run_step", args), compare: _in_tree(compare, "run_step", args)} \
+            if compare else {"": run_step(*args)}
+        for label, r in steps.items():
+            print(f"{label[-12:]:>12} " if compare else "", end="")
+            print(f"{r['rate']:>12,.0f} {r['achieved']:>11,.0f} {r['sent']:>9,} {r['taken']:>9,} {r['lost']:>6,} "
+                  f"{r['datagrams']:>10,} {r['received']:>10,} {r['p50_ms']:>7.2f} {r['p99_ms']:>7.2f} {r['max_ms']:>7.1f} "
+                  f"{r['p99_send_ms']:>8.2f} {r['rx_cpu_us']:>6.1f} {r['per_pass']:>8.1f} "
+                  f"{r['load'][0]:>5.2f}>{r['load'][1]:<5.2f}", flush=True)
+        r = next(iter(steps.values()))
         if r["recorded"] not in (None, r["taken"]):
             print(f"recorded {r['recorded']:,} of {r['taken']:,} messages taken")
         if r["lost"] != 0 or r["errors"] != 0 or r["achieved"] < 0.95 * rate or r["recorded"] not in (None, r["taken"]):
@@ -185,6 +234,95 @@ def ramp(title: str, rates, duration_s: float, robots: int, batch: int, record: 
         print("no rate held with zero loss")
     else:
         print(f"highest rate held with zero loss: {best['rate']:,.0f} msg/s (p99 {best['p99_ms']:.2f} ms)")
+
+
+def cpu_per_datagram(robots: int, profiler: cProfile.Profile | None = None) -> dict[int, float]:
+    """Receive-thread CPU microseconds per datagram, by pass size (see the module's
+    comment). Datagrams are single messages of ``robots`` robots in turn."""
+    base = load_profile(PROFILE)
+    profiles = {robot_name(i): replace(base, name=robot_name(i)) for i in range(robots)}
+    names = [robot_name(i).encode() for i in range(robots)]
+    total = CPU_WARMUP + CPU_DATAGRAMS
+    payloads = [message(names[i % robots], i // robots, 1_000.0 + 0.001 * (i // robots)) for i in range(total)]
+    us = {}
+    for size in CPU_PASS_SIZES:
+        with tempfile.TemporaryDirectory() as tmp:
+            recorder = RecordingWriter(Path(tmp) / "bench.jsonl", profiles.values())
+            hub = Hub(profiles, recorder=recorder)  # serve's defaults: 600 s window
+            hub.add_listener(RawHistory())  # what the dashboard registers
+            udp = UdpReceiver(hub, "127.0.0.1", 0)
+            address = udp.address
+            one_pass, thread_time = getattr(udp, "one_pass", None), time.thread_time_ns
+            if one_pass is None:  # a tree from before UdpReceiver.one_pass: its loop's body, as it was
+                def one_pass(sock=udp.sock, take=udp._take_arrived, process=hub.process, clock=time.time):
+                    select.select([sock], [], [])
+                    if take():
+                        process(clock())
+            cpu_ns = taken = 0
+            with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as out:
+                settle_heap()
+                for start in range(0, total, size):
+                    for payload in payloads[start : start + size]:
+                        out.sendto(payload, address)
+                    measured = start >= CPU_WARMUP
+                    if measured and profiler is not None:
+                        profiler.enable()
+                    began = thread_time()
+                    one_pass()  # what UdpReceiver._run does on each pass
+                    spent = thread_time() - began
+                    if measured:
+                        if profiler is not None:
+                            profiler.disable()
+                        cpu_ns += spent
+                        taken += udp.datagrams
+                    udp.datagrams = 0
+                gc.unfreeze()
+            udp.sock.close()
+            recorder.close()
+            if taken != CPU_DATAGRAMS or recorder.message_count != total:
+                raise RuntimeError(f"pass size {size}: took {taken} of {CPU_DATAGRAMS} datagrams")
+            us[size] = cpu_ns / 1e3 / CPU_DATAGRAMS
+    return us
+
+
+def _in_tree(tree: str, function: str, args: list):
+    """bench_udp.<function>(*args) in a fresh process whose ``receiver``
+    package is the one under ``tree``; its result, through JSON."""
+    code = (
+        "import json, sys; sys.path.insert(0, sys.argv[1]); import receiver; "  # that tree's package first
+        "sys.path.insert(0, sys.argv[2]); import bench_udp; "
+        "print(json.dumps(getattr(bench_udp, sys.argv[3])(*json.loads(sys.argv[4]))))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code, tree, str(Path(__file__).resolve().parent), function, json.dumps(args)],
+        check=True, capture_output=True, text=True,
+    ).stdout
+    return json.loads(out.splitlines()[-1])
+
+
+def cpu_report(robots: int, compare: str | None, profile: bool) -> None:
+    if profile:
+        profiler = cProfile.Profile()
+        us = cpu_per_datagram(robots, profiler)
+        print("receive-thread CPU per datagram, us, by pass size:", {k: round(v, 1) for k, v in us.items()})
+        print(f"cProfile over {len(CPU_PASS_SIZES) * CPU_DATAGRAMS:,} datagrams (its own overhead inflates each call):")
+        pstats.Stats(profiler).sort_stats("tottime").print_stats(25)
+        return
+    trees = {"this tree": _HERE, **({compare: compare} if compare else {})}
+    runs: dict[str, list[dict[int, float]]] = {name: [] for name in trees}
+    for _ in range(CPU_ROUNDS):
+        for name, tree in trees.items():  # in turns, so a busy spell hits both
+            runs[name].append({int(k): v for k, v in _in_tree(tree, "cpu_per_datagram", [robots]).items()})
+    print(f"\nreceive-thread CPU per single-message datagram, us: least and median of {CPU_ROUNDS} runs of "
+          f"{CPU_DATAGRAMS:,} ({robots} robots, recording and raw-history listener as in serve)")
+    print(f"{'datagrams per pass':>18} " + " ".join(f"{name[-24:]:>24}" for name in trees)
+          + (f" {'ratio of medians':>16}" if compare else ""))
+    for size in CPU_PASS_SIZES:
+        least = [min(run[size] for run in runs[name]) for name in trees]
+        med = [float(np.median([run[size] for run in runs[name]])) for name in trees]
+        ratio = f" {med[1] / med[0]:>15.2f}x" if compare else ""
+        print(f"{size:>18} " + " ".join(f"{lo:>13.1f} / {m:>8.1f}" for lo, m in zip(least, med)) + ratio)
+    print(f"1-minute load average {os.getloadavg()[0]:.2f}")
 
 
 def rates(text: str) -> tuple[int, ...]:
@@ -198,14 +336,19 @@ def main() -> None:
     parser.add_argument("--batch", type=int, default=16, help="messages per datagram in the batched ramp (default 16)")
     parser.add_argument("--single-rates", type=rates, default=SINGLE_RATES, help="comma-separated msg/s steps")
     parser.add_argument("--batched-rates", type=rates, default=BATCH_RATES, help="comma-separated msg/s steps")
-    parser.add_argument("--only", choices=("single", "batched"), help="run one of the two ramps")
+    parser.add_argument("--only", choices=("single", "batched", "cpu"), help="run one of the two ramps, or the CPU measurement")
     parser.add_argument("--record", action="store_true", help="the hub also writes a recording, as serve does")
+    parser.add_argument("--compare", metavar="DIR", help="also measure the receiver package under DIR (a copy of another tree)")
+    parser.add_argument("--profile", action="store_true", help="with --only cpu: cProfile's top functions instead")
     args = parser.parse_args()
     print(f"{os.cpu_count()} cores; 1-minute load average {os.getloadavg()[0]:.2f} at start")
+    if args.only == "cpu":
+        cpu_report(args.robots, args.compare, args.profile)
+        return
     if args.only != "batched":
-        ramp("single-message datagrams", args.single_rates, args.duration, args.robots, 1, args.record)
+        ramp("single-message datagrams", args.single_rates, args.duration, args.robots, 1, args.record, args.compare)
     if args.only != "single":
-        ramp("batched datagrams", args.batched_rates, args.duration, args.robots, args.batch, args.record)
+        ramp("batched datagrams", args.batched_rates, args.duration, args.robots, args.batch, args.record, args.compare)
 
 
 if __name__ == "__main__":
