@@ -131,9 +131,14 @@ def step(watch: Watch, robot: str, key: str, tick: int, seen: Level, answer: dic
     for event in events:
         state = TRANSITIONS.get((state, event), state)
     waited = tick - watch.asked_tick
-    if (state is WatchState.UNSURE and waited >= RETRY_TICKS) or (state is WatchState.ASKED and waited > STALL_TICKS):
+    retry = ((state is WatchState.UNSURE and waited >= RETRY_TICKS)
+             or (state is WatchState.ASKED and waited > STALL_TICKS))
+    if retry:
         state = TRANSITIONS[(state, WatchEvent.RETRY)]
-    ask = state is WatchState.ASKED and (watch.state is not WatchState.ASKED or waited > STALL_TICKS)
+    # Every retry asks, including one in the tick that brings a late "not
+    # enough motion" (ASKED -> UNSURE -> ASKED): judged by the state before
+    # the tick alone, that retry waited STALL_TICKS for an answer already in.
+    ask = retry or (state is WatchState.ASKED and watch.state is not WatchState.ASKED)
     watch = replace(watch, state=state, rx=seen.rx)
     if ask:
         watch = replace(watch, asked=watch.asked + 1, asked_tick=tick)

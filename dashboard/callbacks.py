@@ -20,12 +20,14 @@ VIEWS = (("track", ids.TRACK), ("poses", ids.POSES), ("errors", ids.ERRORS), ("l
 DISAGREEMENT_IDS = (ids.POSITION_NOW, ids.POSITION_WORST, ids.POSITION_GROWTH, ids.HEADING_NOW, ids.HEADING_WORST,
                     ids.HEADING_GROWTH)
 LOOP_IDS = (ids.LOOP_RATE, ids.LOOP_MEAN, ids.LOOP_P95, ids.LOOP_MAX, ids.LOOP_LONG, ids.JITTER)
+READOUT_IDS = DISAGREEMENT_IDS + LOOP_IDS
 
 
 # A tick asks for an update only once the previous one has been answered, so
 # that a slow browser or server never piles up requests (Dash drops the answer
 # to a request that a newer one overtook, and the page would stand still).
-# After STALL_TICKS unanswered ticks it asks again anyway.
+# After STALL_TICKS unanswered ticks it asks again anyway. The diagnosis and
+# guided-check panels tick through this gate.
 STALL_TICKS = 25
 GATE = f"""
 function(n, cursor, request) {{
@@ -35,51 +37,88 @@ function(n, cursor, request) {{
     return window.dash_clientside.no_update;
 }}
 """
-# The views do not wait for the next tick once an update is answered: the
-# answer moves the tick on at once (the gate then asks), though no sooner
-# than MIN_GAP_MS after the previous request. A tick that came 0-200 ms
-# after the answer cost the page a fifth of its refreshes when drawing took
-# a little over one tick.
+# The views are paced by their answers instead (NEXT): each answer asks for
+# the next update at once, though no sooner than MIN_GAP_MS after the
+# previous request, without a tick in between (a tick and its gate cost the
+# page a callback run's bookkeeping per update). Their interval is a
+# watchdog: it asks when nothing is on its way, on the page's start, on
+# Follow after Pause page, and STALL_MS after a request whose answer never
+# came. The replay bar asks for its position with every request, while the
+# bar is shown (no request per tick when live).
 MIN_GAP_MS = 100
+RESUME_MS = 1000  # more than MIN_GAP_MS: an answered request this old has no next one coming
+STALL_MS = 10_000
+_ASK = """
+    const ask = {tick: (request ? request.tick : 0) + 1, at: Date.now()};
+    const replaying = !(barClass || "").includes("hidden");
+"""
+WATCHDOG = f"""
+function(n, cursor, request, barClass) {{
+    const age = request ? Date.now() - (request.at || 0) : Infinity;
+    const answered = !request || (cursor && cursor.tick === request.tick);
+    if (!(answered ? age > {RESUME_MS} : age > {STALL_MS})) {{
+        return [window.dash_clientside.no_update, window.dash_clientside.no_update];
+    }}
+    {_ASK.strip()}
+    return [ask, replaying ? ask : window.dash_clientside.no_update];
+}}
+"""
+# Each answer also paints the texts that changed (cursor["paint"]: readouts,
+# status line, link table) straight into their elements, which hold no
+# children for React: sent as components' children, every text cost the page
+# a round of Dash's bookkeeping (which runs over every component on the
+# page), and every cell of a rebuilt link table one more.
 NEXT = f"""
-function(cursor, request, n, paused) {{
+function(cursor, request, paused, barClass) {{
+    const paint = (cursor && cursor.paint) || {{}};
+    for (const [id, text] of Object.entries(paint.text || {{}})) {{
+        const element = document.getElementById(id);
+        if (element) {{ element.textContent = text; }}
+    }}
+    for (const [id, markup] of Object.entries(paint.html || {{}})) {{
+        const element = document.getElementById(id);
+        if (element) {{ element.innerHTML = markup; }}
+    }}
     if (paused || !cursor || !request || cursor.tick !== request.tick) {{ return; }}
-    const wait = Math.max(0, {MIN_GAP_MS} - (Date.now() - (request.at || 0)));
-    setTimeout(() => window.dash_clientside.set_props("{ids.TICK}", {{n_intervals: n + 1}}), wait);
+    const next = () => {{
+        {_ASK.strip()}
+        window.dash_clientside.set_props("{ids.REQUEST}", {{data: ask}});
+        if (replaying) {{ window.dash_clientside.set_props("{ids.REPLAY_REQUEST}", {{data: ask}}); }}
+    }};
+    const wait = {MIN_GAP_MS} - (Date.now() - (request.at || 0));
+    if (wait > 0) {{ setTimeout(next, wait); }} else {{ next(); }}
 }}
 """
 # The link table and the status line change with every message counted;
-# redrawing them once a second is live enough and spares the page rebuilding
-# a table of 20-60 components at every refresh.
+# painting them once a second is live enough.
 SLOW_TEXTS_S = 1.0
-# The replay bar asks for its position only while it is shown: no request per tick when live.
-REPLAY_GATE = """
-function(request, barClass) {
-    return (barClass || "").includes("hidden") ? window.dash_clientside.no_update : request;
-}
-"""
+
+
+def triggered_ids() -> list[str]:
+    """The ids of every input that triggered the running callback, first seen first.
+
+    Dash merges the triggers of calls of one callback that wait in the page
+    at once into one call; each of them must count.
+    """
+    return list(dict.fromkeys(ctx.triggered_prop_ids.values()))
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
     view_outputs = [Output(cid, prop) for _, cid in VIEWS for prop in ("figure", "extendData")]
     app.clientside_callback(
-        GATE, Output(ids.REQUEST, "data"), Input(ids.TICK, "n_intervals"), State(ids.CURSOR, "data"),
-        State(ids.REQUEST, "data"),
+        WATCHDOG, Output(ids.REQUEST, "data"), Output(ids.REPLAY_REQUEST, "data"), Input(ids.TICK, "n_intervals"),
+        State(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.REPLAY_BAR, "className"),
     )
+    # Not outputs but set_props: Dash drops a callback that its own outputs
+    # triggered again through a chain (NEXT -> request -> update -> cursor -> NEXT).
     app.clientside_callback(
-        NEXT, Input(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.TICK, "n_intervals"),
-        State(ids.TICK, "disabled"),
-    )
-    app.clientside_callback(
-        REPLAY_GATE, Output(ids.REPLAY_REQUEST, "data"), Input(ids.REQUEST, "data"), State(ids.REPLAY_BAR, "className"),
+        NEXT, Input(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.TICK, "disabled"),
+        State(ids.REPLAY_BAR, "className"),
     )
 
     @app.callback(
         *view_outputs,
         Output(ids.LOOP_HISTOGRAM, "figure"),
-        *[Output(cid, "children") for cid in DISAGREEMENT_IDS + LOOP_IDS],
-        Output(ids.LINK_TABLE, "children"),
-        Output(ids.STATUS, "children"),
         Output(ids.CURSOR, "data"),
         Output(ids.ROBOT, "options"),
         Output(ids.ROBOT, "value"),
@@ -98,17 +137,20 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         jitter_s = snap.jitter_s if snap is not None else float("nan")
         texts = layout.disagreement_values(r.disagreement, r.unit) + layout.loop_values(r.loop, jitter_s)
         r.cursor["texts"] = texts
-        # Only the readouts that changed: each text sent costs the page a round of its bookkeeping.
+        # Only the readouts that changed (the page keeps the others).
         shown = (cursor or {}).get("texts") or [None] * len(texts)
-        texts_out = [no_update if text == old else text for text, old in zip(texts, shown)]
+        paint = {"text": {cid: text for cid, text, old in zip(READOUT_IDS, texts, shown) if text != old}, "html": {}}
         slow_at = (cursor or {}).get("slow_at", -math.inf)
-        slow = bool(r.figures) or not 0.0 <= r.now - slow_at < SLOW_TEXTS_S
-        r.cursor["slow_at"] = r.now if slow else slow_at
-        table = layout.link_table(r.snapshots, r.now, robot, r.unattributed) if slow else no_update
-        status = r.status if slow else no_update
+        if r.figures or not 0.0 <= r.now - slow_at < SLOW_TEXTS_S:
+            r.cursor["slow_at"] = r.now
+            paint["text"][ids.STATUS] = r.status
+            paint["html"][ids.LINK_TABLE] = layout.link_table(r.snapshots, r.now, robot, r.unattributed)
+        else:
+            r.cursor["slow_at"] = slow_at
+        r.cursor["paint"] = paint
         histogram = no_update if r.histogram is None else r.histogram
         robot_out = (no_update if fresh == options else fresh), (no_update if r.robot == robot else r.robot)
-        return (*views, histogram, *texts_out, table, status, r.cursor, *robot_out)
+        return (*views, histogram, r.cursor, *robot_out)
 
     @app.callback(
         Output(ids.TICK, "disabled"),
@@ -130,24 +172,39 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Input(ids.SPEED, "value"),
         Input(ids.SCRUB, "value"),
         Input(ids.REPLAY_REQUEST, "data"),
+        State(ids.SCRUB, "max"),
+        State(ids.REPLAY_POSITION, "children"),
+        State(ids.REPLAY_BAR, "className"),
+        State(ids.BACK_TO_LIVE, "className"),
     )
-    def replay_controls(_play, _pause, speed, scrub, _tick):
+    def replay_controls(_play, _pause, speed, scrub, _tick, *shown):
         replay = station.replay
         if replay is None:
-            return no_update, no_update, "", "replay-bar hidden", "button hidden"
-        trigger = ctx.triggered_id
-        if trigger == ids.PLAY:
-            replay.play()
-        elif trigger == ids.PAUSE:
-            replay.pause()
-        elif trigger == ids.SPEED and speed:
-            replay.set_speed(float(speed))
-        elif trigger == ids.SCRUB and scrub is not None:
-            replay.seek(float(scrub))
-        state = "playing" if replay.playing else "paused"
-        text = f"{replay.position_s:.1f} s of {replay.duration_s:.1f} s, {state} at {replay.speed:g}\u00d7"
-        back = "button" if station.live is not None else "button hidden"
-        return round(replay.position_s, 1), round(replay.duration_s, 1), text, "replay-bar", back
+            new = (no_update, no_update, "", "replay-bar hidden", "button hidden")
+        else:
+            # Every control that triggered this call, in the order the page saw
+            # them: a click that comes while a tick's call of this callback still
+            # waits in the page is merged into that call, and ctx.triggered_id
+            # names only the first trigger (the tick), so the click was lost.
+            for control in triggered_ids():
+                if control == ids.PLAY:
+                    replay.play()
+                elif control == ids.PAUSE:
+                    replay.pause()
+                elif control == ids.SPEED and speed:
+                    replay.set_speed(float(speed))
+                elif control == ids.SCRUB and scrub is not None:
+                    replay.seek(float(scrub))
+            state = "playing" if replay.playing else "paused"
+            text = f"{replay.position_s:.1f} s of {replay.duration_s:.1f} s, {state} at {replay.speed:g}\u00d7"
+            back = "button" if station.live is not None else "button hidden"
+            new = (round(replay.position_s, 1), round(replay.duration_s, 1), text, "replay-bar", back)
+        # Only what changed. The slider above all: an answer that wrote the
+        # position it already showed could land between the person's release
+        # of the slider and the page's call for it, put the old value back
+        # and the seek went to where the replay already was. (While playing
+        # the slider moves with every answer, and that window stays open.)
+        return tuple(no_update if value == old else value for value, old in zip(new, (scrub, *shown)))
 
     @app.callback(
         Output(ids.MESSAGE, "children"),

@@ -52,7 +52,6 @@ def cards(settings: Settings) -> list[html.Section]:
         dcc.Store(id=ids.DIAGNOSE_ASK, data=None),
         dcc.Store(id=ids.DIAGNOSE_ANSWER, data=None),
         dcc.Store(id=ids.DIAGNOSE_REQUEST, data=None),
-        dcc.Store(id=ids.DIAGNOSE_CURSOR, data=None),
     ])
     guided = html.Section(className="card", children=[
         html.H2("Guided check"),
@@ -121,22 +120,22 @@ def _status(watch: Watch, settings: Settings) -> str:
 
 
 def _watch(station: Station, settings: Settings, tick: int, robot: str | None, data: dict | None, answer: dict | None):
-    """(watch store, ask or no_update, status line) after one tick of the watch."""
+    """(watch, ask, status line) after one tick of the watch; watch and ask are None when they stay as they were."""
     hub = station.active.hub
     # Before the page has chosen a robot (its first refresh), watch the first one heard.
     robot = robot or next(iter(station.active.raw.robots()), None)
     profile = hub.profiles.get(robot) if robot else None
     if profile is None:
-        return no_update, no_update, "" if robot is None else "no profile: nothing to watch"
+        return None, None, "" if robot is None else "no profile: nothing to watch"
     watch, key = Watch.from_store(data), station.key()
     since = watch.rx if (watch.robot, watch.key) == (robot, key) else None
     try:
         rows = hub.history(robot, since_rx=since)
     except KeyError:  # the robot is not in this source (yet)
-        return no_update, no_update, ""
+        return None, None, ""
     limits = Thresholds.of(settings.diagnose_position_in, settings.diagnose_heading_deg, profile.distance_unit)
     watch, ask = step(watch, robot, key, tick, level(rows, since, limits), answer)
-    return watch.to_store(), ({"n": watch.asked, "robot": robot} if ask else no_update), _status(watch, settings)
+    return watch.to_store(), ({"n": watch.asked, "robot": robot} if ask else None), _status(watch, settings)
 
 
 def warm_up(station: Station) -> None:
@@ -154,22 +153,25 @@ def warm_up(station: Station) -> None:
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
-    from dashboard.callbacks import GATE  # not at the top: callbacks imports layout, which imports this module
+    # Not at the top: callbacks imports layout, which imports this module.
+    from dashboard.callbacks import GATE, triggered_ids
 
     warm_up(station)
     # Both ticking callbacks go through the views' gate (callbacks.GATE): a
     # tick asks only once the previous answer is in, else on a busy machine
     # each answer would be voided by the next tick's request and never shown.
-    for tick, cursor, request in ((ids.DIAGNOSE_TICK, ids.DIAGNOSE_CURSOR, ids.DIAGNOSE_REQUEST),
+    for tick, cursor, request in ((ids.DIAGNOSE_TICK, ids.DIAGNOSE_WATCH, ids.DIAGNOSE_REQUEST),
                                   (ids.GUIDED_TICK, ids.GUIDED_CURSOR, ids.GUIDED_REQUEST)):
         app.clientside_callback(GATE, Output(request, "data"), Input(tick, "n_intervals"), State(cursor, "data"),
                                 State(request, "data"))
 
+    # The watch's store is also its gate's cursor (the tick it answers) and
+    # remembers the status line, which is sent only when it changes: this
+    # runs twice a second, and each output costs the page its bookkeeping.
     @app.callback(
         Output(ids.DIAGNOSE_WATCH, "data"),
         Output(ids.DIAGNOSE_ASK, "data"),
         Output(ids.DIAGNOSE_STATUS, "children"),
-        Output(ids.DIAGNOSE_CURSOR, "data"),
         Input(ids.DIAGNOSE_REQUEST, "data"),
         State(ids.ROBOT, "value"),
         State(ids.DIAGNOSE_WATCH, "data"),
@@ -177,8 +179,10 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
     )
     def watch_disagreement(request, robot, data, answer):
         tick = (request or {}).get("tick") or 0
-        watch, ask, status = _watch(station, settings, tick, robot, data, answer)
-        return watch, ask, status, {"tick": tick}
+        data = data or {}
+        watch, ask, status = _watch(station, settings, tick, robot, data.get("watch"), answer)
+        store = {"watch": data.get("watch") if watch is None else watch, "tick": tick, "status": status}
+        return store, (no_update if ask is None else ask), (no_update if status == data.get("status") else status)
 
     @app.callback(
         Output(ids.DIAGNOSE_RESULT, "children"),
@@ -190,7 +194,8 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         prevent_initial_call=True,
     )
     def diagnose_now(_clicks, ask, robot, seconds):
-        asked = ctx.triggered_id == ids.DIAGNOSE_ASK
+        # A press merged with an ask into one call (callbacks.triggered_ids) is the person's run.
+        asked = ids.DIAGNOSE_RUN not in triggered_ids()
         robot = ask["robot"] if asked else robot
         how, reason = ("ran by itself", f"the disagreement passed {_limits_text(settings)}") if asked else ("ran on request", "")
         result, confidence = run_diagnosis(station, robot, seconds or settings.diagnose_s, how, reason)

@@ -1,12 +1,17 @@
 """The page's structure: controls, the five views and their readouts.
 
-Owns the component tree and the small HTML pieces the callbacks fill in
-(readout values, the link-health table). Static: it reads no data.
+Owns the component tree and what the callbacks fill in: the readout texts
+and the link-health table as one piece of HTML. Those are painted into
+their elements by the page's own script (callbacks.NEXT), not by Dash: a
+text or a table sent as a component's children cost the page a round of
+Dash's bookkeeping per readout, and one per table cell, at every refresh.
+Static: it reads no data.
 """
 
 from __future__ import annotations
 
 import math
+from html import escape
 
 from dash import dcc, html
 
@@ -19,10 +24,12 @@ _GRAPH_CONFIG = {"displaylogo": False, "responsive": True}
 
 
 def _readout(label: str, component_id: str, hint: str = "") -> html.Div:
+    # The value's element has no children for React to own: the page paints its
+    # text (a dash until the first refresh, from the stylesheet).
     return html.Div(
         className="readout",
         title=hint,
-        children=[html.Span(label, className="readout-label"), html.Span("\u2014", id=component_id, className="readout-value")],
+        children=[html.Span(label, className="readout-label"), html.Span(id=component_id, className="readout-value")],
     )
 
 
@@ -158,25 +165,31 @@ def loop_values(loop: readouts.LoopTiming, jitter_s: float) -> list[str]:
 
 
 _STATE_CLASS = {LinkState.LIVE: "live", LinkState.QUIET: "quiet", LinkState.WAITING: "waiting"}
+LINK_HEAD = ("robot", "link", "messages", "rate", "gaps", "duplicates", "out of order", "decode errors")
 
 
-def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> html.Table:
-    head = ["robot", "link", "messages", "rate", "gaps", "duplicates", "out of order", "decode errors"]
-    body = []
+def _cell(tag: str, text: str, css_class: str = "") -> str:
+    attribute = f' class="{css_class}"' if css_class else ""
+    return f"<{tag}{attribute}>{escape(text)}</{tag}>"
+
+
+def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> str:
+    """The link-health table as HTML (every text escaped), one row per robot."""
+    rows = []
     for robot, s in sorted(snapshots.items()):
         if s.state is LinkState.QUIET:
             state = f"no data for {max(now - s.last_rx, 0.0):.0f} s"
         else:
             state = s.state.value
         errors = ", ".join(f"{reason} {n}" for reason, n in sorted(s.errors.items())) or "none"
-        body.append(html.Tr(
-            className="selected" if robot == selected else "",
-            children=[html.Td(robot), html.Td(state, className=f"state {_STATE_CLASS[s.state]}"), html.Td(f"{s.messages}"),
-                      html.Td(f"{s.rate_hz:.0f} msg/s"), html.Td(f"{s.gaps}"), html.Td(f"{s.duplicates}"),
-                      html.Td(f"{s.late}"), html.Td(errors)],
-        ))
-    rows = [html.Thead(html.Tr([html.Th(h) for h in head])), html.Tbody(body)]
+        cells = [_cell("td", robot), _cell("td", state, f"state {_STATE_CLASS[s.state]}")] + [
+            _cell("td", text) for text in (f"{s.messages}", f"{s.rate_hz:.0f} msg/s", f"{s.gaps}", f"{s.duplicates}",
+                                           f"{s.late}", errors)]
+        row_class = ' class="selected"' if robot == selected else ""
+        rows.append(f"<tr{row_class}>{''.join(cells)}</tr>")
+    caption = ""
     if unattributed:
         text = ", ".join(f"{reason} {n}" for reason, n in sorted(unattributed.items()))
-        rows.append(html.Caption(f"refused before a robot could be named: {text}"))
-    return html.Table(className="link-table", children=rows)
+        caption = f"<caption>{escape(f'refused before a robot could be named: {text}')}</caption>"
+    head = "".join(_cell("th", h) for h in LINK_HEAD)
+    return f'<table class="link-table"><thead><tr>{head}</tr></thead><tbody>{"".join(rows)}</tbody>{caption}</table>'

@@ -13,6 +13,7 @@ import threading
 
 from typing import Callable
 
+from waitress import wasyncore
 from waitress.server import create_server
 
 from dashboard.app import create_app
@@ -23,6 +24,7 @@ from receiver.live import parse_host_port
 
 log = logging.getLogger("podwatch.dashboard")
 THREADS = 4  # a page polls with a few callbacks at once; more threads only add contention
+STOP_S = 5.0  # at shutdown, at most this long for the requests being served (a diagnosis), then for the loop
 # waitress warns "Task queue depth is N" whenever a request waits for a thread;
 # a page's callbacks arriving together do that all the time, harmlessly.
 logging.getLogger("waitress.queue").setLevel(logging.ERROR)
@@ -38,15 +40,19 @@ def is_loopback(host: str) -> bool:
 
 
 class DashboardServer:
-    """``start`` binds and serves in a daemon thread; ``url`` says where."""
+    """``start`` binds and serves in a daemon thread; ``url`` says where; ``stop`` ends it cleanly."""
 
     def __init__(self, wsgi_app, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT) -> None:
         self.host = host
         if not is_loopback(host):
             log.warning("dashboard listens on %s, not on loopback: anyone who can reach this address sees the page", host)
-        self._server = create_server(wsgi_app, host=host, port=port, threads=THREADS, clear_untrusted_proxy_headers=True)
+        self._sockets: dict = {}  # waitress' socket map: the listening socket, the connections, its trigger
+        self._server = create_server(wsgi_app, map=self._sockets, host=host, port=port, threads=THREADS,
+                                     clear_untrusted_proxy_headers=True)
         self.port = self._server.effective_port
-        self._thread = threading.Thread(target=self._server.run, name="podwatch-dashboard", daemon=True)
+        self._closing = False
+        self._closing_lock = threading.Lock()
+        self._thread = threading.Thread(target=self._serve, name="podwatch-dashboard", daemon=True)
 
     @property
     def url(self) -> str:
@@ -56,8 +62,30 @@ class DashboardServer:
     def start(self) -> None:
         self._thread.start()
 
+    def _serve(self) -> None:
+        # waitress' own run() loops until its socket map is empty; closing the
+        # sockets from another thread, under its select(), killed it with
+        # "Bad file descriptor". Here the serving thread closes them itself.
+        adj = self._server.adj
+        while True:
+            wasyncore.loop(timeout=adj.asyncore_loop_timeout, use_poll=adj.asyncore_use_poll, map=self._sockets, count=1)
+            with self._closing_lock:
+                if self._closing:
+                    wasyncore.close_all(self._sockets)
+                    return
+
     def stop(self) -> None:
-        self._server.close()
+        """No new connections, the requests being served answered, then every socket closed."""
+        self._server.accepting = False
+        self._server.task_dispatcher.shutdown(timeout=STOP_S)
+        if not self._thread.is_alive():  # never started, or already stopped
+            wasyncore.close_all(self._sockets)
+            return
+        # Under the lock, so that the trigger is pulled before the serving thread closes it.
+        with self._closing_lock:
+            self._closing = True
+            self._server.pull_trigger()
+        self._thread.join(timeout=STOP_S)
 
 
 def start_dashboard(station: Station, settings: Settings, where: str | None, say: Callable[[str], None]) -> DashboardServer:

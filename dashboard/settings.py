@@ -37,10 +37,11 @@ class Settings:
     loop_threshold_s: float = LOOP_THRESHOLD_MS / 1000.0
     window_s: float = 60.0
     # The page asks for new points as soon as the last are answered (callbacks.NEXT);
-    # its interval ticks only start it and ask again after a lost request. Ticks
-    # cost the page its callback bookkeeping even when they ask for nothing: at
-    # 500 ms rather than 200 ms, 10-30 % less browser CPU per update.
-    tick_ms: int = 500
+    # its interval is a watchdog that only starts it, resumes it and asks again
+    # after a lost request. Ticks cost the page its callback bookkeeping even
+    # when they ask for nothing (at 500 ms rather than 200 ms: 10-30 % less
+    # browser CPU per update), and a watchdog needs no more than one a second.
+    tick_ms: int = 1000
     points: int = 1000  # most points per view and window (server-side downsampling beyond)
     full_every_s: float = 10.0  # a whole redraw this often re-trims the window exactly
     # The page diagnoses by itself when the disagreement first passes either of

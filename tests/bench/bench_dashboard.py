@@ -13,7 +13,9 @@ the page; counts answered update callbacks per second once the 60 s window
 is full, and the CPU time per update of Chromium (all its processes) and of
 the serve process (which also receives the robots' messages). On a shared
 machine updates/s follows the load; the CPU times hardly do, so compare
-those across runs, and run a before and an after side by side.
+those across runs, and run a before and an after side by side (the
+machine's 1-minute load average before and after each measurement is
+printed with it).
 Targets (issue 4): < 30 ms, < 200 kB, >= 5 updates/s.
 """
 
@@ -190,10 +192,12 @@ def in_browser(count: int, rate_hz: float, measure_s: float, fill_s: float) -> d
             # wait_for_timeout, not time.sleep: the sync API delivers events only while it runs
             page.wait_for_timeout(fill_s * 1000)
             before = cpu_s(serve.pid)
+            load_before = os.getloadavg()[0]
             stamps.clear()
             sizes.clear()
             page.wait_for_timeout(measure_s * 1000)
             used = {k: v - before[k] for k, v in cpu_s(serve.pid).items()}
+            load = (load_before, os.getloadavg()[0])
             n = len(stamps)
             rate = (n - 1) / (stamps[-1] - stamps[0]) if n > 1 else 0.0
             shown = page.inner_text(f"#{ids.LOOP_RATE}")
@@ -206,7 +210,8 @@ def in_browser(count: int, rate_hz: float, measure_s: float, fill_s: float) -> d
     return {"robots": count, "rate_hz": rate_hz, "updates_per_s": rate, "updates": n,
             "median_kB": statistics.median(sizes) / 1000 if sizes else None,
             "max_kB": max(sizes) / 1000 if sizes else None, "loop_rate_on_page": shown,
-            "cpu_ms_per_update": {k: round(1000 * v / max(n, 1)) for k, v in used.items()}}
+            "cpu_ms_per_update": {k: round(1000 * v / max(n, 1)) for k, v in used.items()},
+            "load_average_1min": [round(x, 2) for x in load]}  # before and after measuring
 
 
 def cpu_s(serve_pid: int) -> dict[str, float]:

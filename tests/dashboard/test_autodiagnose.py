@@ -70,6 +70,21 @@ def test_not_enough_motion_asks_again_while_the_disagreement_stays_up():
     assert not ask and w.state is WatchState.DONE
 
 
+def test_a_late_not_enough_motion_asks_again_in_the_tick_it_arrives():
+    # On a busy machine a run can take longer than RETRY_TICKS: its answer
+    # and the retry it calls for come in one tick, and that tick asks.
+    w, _ = step(Watch(), "bot", "k", 10, PAST, None)
+    for tick in range(11, 10 + RETRY_TICKS + 1):
+        w, ask = step(w, "bot", "k", tick, UP, None)
+        assert not ask
+    w, ask = step(w, "bot", "k", 11 + RETRY_TICKS, UP, {"n": 1, "confidence": "not enough motion"})
+    assert ask and w.state is WatchState.ASKED and w.asked == 2 and w.asked_tick == 11 + RETRY_TICKS
+    w, ask = step(w, "bot", "k", 12 + RETRY_TICKS, UP, {"n": 1, "confidence": "not enough motion"})
+    assert not ask and w.state is WatchState.ASKED  # the old answer does not count for the new ask
+    w, ask = step(w, "bot", "k", 13 + RETRY_TICKS, UP, {"n": 2, "confidence": "high"})
+    assert not ask and w.state is WatchState.DONE
+
+
 def test_only_the_answer_to_the_latest_ask_counts_and_a_lost_one_is_asked_again():
     w, _ = step(Watch(), "bot", "k", 0, PAST, None)
     w, _ = step(w, "bot", "k", 1, UP, {"n": 0, "confidence": "high"})  # an older answer

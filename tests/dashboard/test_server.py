@@ -2,17 +2,19 @@
 
 from __future__ import annotations
 
+import logging
 import re
 import signal
 import subprocess
 import sys
+import threading
 import time
 import urllib.request
 from pathlib import Path
 
 import pytest
 
-from dashboard.server import is_loopback
+from dashboard.server import DashboardServer, is_loopback
 from tests.dashboard.conftest import free_port
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -61,3 +63,34 @@ def test_a_taken_port_is_one_line():
     assert done.returncode == 1
     assert done.stderr.strip().splitlines()[-1].startswith("podwatch: error: cannot serve the dashboard on 127.0.0.1:")
     assert "Traceback" not in done.stderr
+
+
+def test_stop_answers_the_request_being_served_then_closes_without_an_error(monkeypatch, caplog):
+    # Closing the sockets under the serving thread killed it, or the worker
+    # still answering, with "Bad file descriptor". Here the request is being
+    # served when stop() begins and answers once stop() has stopped accepting.
+    died = []
+    monkeypatch.setattr(threading, "excepthook", lambda args: died.append(args.exc_value))
+    serving = threading.Event()
+
+    def app(environ, start_response):
+        serving.set()
+        deadline = time.monotonic() + 30.0
+        while server._server.accepting and time.monotonic() < deadline:
+            time.sleep(0.01)
+        start_response("200 OK", [("Content-Type", "text/plain")])
+        return [b"answered"]
+
+    server = DashboardServer(app, "127.0.0.1", 0)
+    server.start()
+    answers = []
+    client = threading.Thread(target=lambda: answers.append(urllib.request.urlopen(server.url, timeout=30).read()))
+    client.start()
+    with caplog.at_level(logging.WARNING):
+        assert serving.wait(30.0)
+        server.stop()
+        client.join(30.0)
+    assert answers == [b"answered"]
+    assert not server._thread.is_alive()
+    assert died == []
+    assert [r.getMessage() for r in caplog.records if r.name.startswith("waitress")] == []
