@@ -63,17 +63,20 @@ function(n, cursor, request, barClass) {{
     return [ask, replaying ? ask : window.dash_clientside.no_update];
 }}
 """
-# Each answer also paints the texts that changed (cursor["paint"]: readouts,
-# status line, link table) straight into their elements, which hold no
-# children for React: sent as components' children, every text cost the page
-# a round of Dash's bookkeeping (which runs over every component on the
-# page), and every cell of a rebuilt link table one more.
+# Each answer also paints texts (cursor["paint"]: readouts, status line, link
+# table) straight into their elements, which hold no children for React: sent
+# as components' children, every text cost the page a round of Dash's
+# bookkeeping (which runs over every component on the page), and every cell of
+# a rebuilt link table one more. Every answer carries every readout (a few
+# hundred bytes), not only those that changed: Dash may run this function once
+# for two answers that came close together, and the first one's texts would
+# be lost for as long as they did not change. The page skips unchanged texts.
 NEXT = f"""
 function(cursor, request, paused, barClass) {{
     const paint = (cursor && cursor.paint) || {{}};
     for (const [id, text] of Object.entries(paint.text || {{}})) {{
         const element = document.getElementById(id);
-        if (element) {{ element.textContent = text; }}
+        if (element && element.textContent !== text) {{ element.textContent = text; }}
     }}
     for (const [id, markup] of Object.entries(paint.html || {{}})) {{
         const element = document.getElementById(id);
@@ -90,7 +93,8 @@ function(cursor, request, paused, barClass) {{
 }}
 """
 # The link table and the status line change with every message counted;
-# painting them once a second is live enough.
+# painting them once a second is live enough (and heals a lost paint within
+# a second).
 SLOW_TEXTS_S = 1.0
 
 
@@ -136,10 +140,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         snap = r.snapshots.get(robot)
         jitter_s = snap.jitter_s if snap is not None else float("nan")
         texts = layout.disagreement_values(r.disagreement, r.unit) + layout.loop_values(r.loop, jitter_s)
-        r.cursor["texts"] = texts
-        # Only the readouts that changed (the page keeps the others).
-        shown = (cursor or {}).get("texts") or [None] * len(texts)
-        paint = {"text": {cid: text for cid, text, old in zip(READOUT_IDS, texts, shown) if text != old}, "html": {}}
+        paint = {"text": dict(zip(READOUT_IDS, texts)), "html": {}}
         slow_at = (cursor or {}).get("slow_at", -math.inf)
         if r.figures or not 0.0 <= r.now - slow_at < SLOW_TEXTS_S:
             r.cursor["slow_at"] = r.now
