@@ -192,11 +192,11 @@ def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]
         source.play()
         _say(f"replaying {args.recording} ({source.duration_s:.1f} s) on the dashboard; Ctrl-C to stop")
         stop = threading.Event()
-        signal.signal(signal.SIGTERM, lambda *_: stop.set())
-        try:
-            while not stop.wait(0.5):
-                pass
-        except KeyboardInterrupt:
+        # Both set here: a shell starts a background job with SIGINT ignored,
+        # and Python then installs no KeyboardInterrupt for it.
+        for sig in (signal.SIGINT, signal.SIGTERM):
+            signal.signal(sig, lambda *_: stop.set())
+        while not stop.wait(0.5):
             pass
     finally:
         page.stop()

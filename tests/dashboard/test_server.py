@@ -27,11 +27,18 @@ def test_which_addresses_count_as_loopback(host, loopback):
     assert is_loopback(host) is loopback
 
 
-def test_replay_with_the_dashboard_serves_the_page_until_ctrl_c():
+def _ignore_sigint() -> None:
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # as a shell starts a background job
+
+
+@pytest.mark.parametrize("sig, background", [(signal.SIGINT, False), (signal.SIGTERM, False), (signal.SIGINT, True)],
+                         ids=["ctrl-c", "sigterm", "sigint-to-a-background-job"])
+def test_replay_with_the_dashboard_serves_the_page_until_told_to_stop(sig, background):
     port = free_port()
     proc = subprocess.Popen(
         [sys.executable, "-m", "receiver.cli", "replay", str(REVERSED), "--dashboard", f"127.0.0.1:{port}"],
         stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=ROOT,
+        preexec_fn=_ignore_sigint if background else None,
     )
     try:
         url = None
@@ -43,8 +50,13 @@ def test_replay_with_the_dashboard_serves_the_page_until_ctrl_c():
         with urllib.request.urlopen(url, timeout=10) as page:
             assert page.status == 200 and b"podwatch" in page.read()
     finally:
-        proc.send_signal(signal.SIGINT)
-        out, _ = proc.communicate(timeout=20)
+        proc.send_signal(sig)
+        try:
+            out, _ = proc.communicate(timeout=20)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            out, _ = proc.communicate()
+            pytest.fail(f"still running 20 s after {sig.name}: {out}")
     assert proc.returncode == 0, out
     assert "Traceback" not in out
 
