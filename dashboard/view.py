@@ -84,7 +84,7 @@ def refresh(
     source = station.active
     now = source.now()
     hub = source.hub
-    snapshots = hub.snapshot(now)
+    snapshots = hub.snapshot(now, loop_stats=False)  # the views compute their own from their rows
     robots = sorted(snapshots)
     if robot not in snapshots:
         robot = robots[0] if robots else None

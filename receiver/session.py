@@ -34,6 +34,7 @@ DEFAULT_QUIET_AFTER_S = 1.0
 DEFAULT_MAX_ROWS = 600_000
 # RFC 3550 section 6.4.1 interarrival jitter: J += (|D| - J) / 16.
 _JITTER_GAIN = 1.0 / 16.0
+_NO_ROWS = np.empty(0)  # a snapshot without loop statistics
 # Up to this many samples of one robot in one ``process`` go one by one
 # through the tracker's plain-float path (about 10 us a sample here); more go
 # through numpy, whose fixed cost of about 0.5 ms a piece then pays off. Live
@@ -331,17 +332,22 @@ class Session:
         self._flush_rows()
         return self.ring.cut(since_rx)
 
-    def snapshot(self, now: float, lock: AbstractContextManager = nullcontext()) -> RobotSnapshot:
+    def snapshot(
+        self, now: float, lock: AbstractContextManager = nullcontext(), loop_stats: bool = True
+    ) -> RobotSnapshot:
         """The robot now. ``lock`` is held only while the session is read,
         for microseconds: the loop statistics copy and sort up to the whole
-        window (tens of milliseconds at 600,000 rows) after it is released."""
+        window (tens of milliseconds at 600,000 rows) after it is released.
+        Without ``loop_stats`` they are NaN and cost nothing: for a caller
+        that asks several times a second and computes its own over the rows
+        it shows (the page), since that CPU is taken from the receive loop."""
         with lock:
             held = self.cut()
             st = replace(self.stats, errors=dict(self.stats.errors))
             state = self.state
             newest = self.ring.newest()
             rate = float(len(self.ring) - self.ring.first_after(now - 1.0))
-        loop = held.rows(("loop",))["loop"]
+        loop = held.rows(("loop",))["loop"] if loop_stats else _NO_ROWS
         loop = loop[np.isfinite(loop)]
         if len(loop):
             mean, p50, p95, top = float(loop.mean()), *map(float, np.percentile(loop, [50, 95])), float(loop.max())
@@ -536,13 +542,13 @@ class Hub:
                         oldest_live_rx = session.stats.last_rx
             self._oldest_live_rx = oldest_live_rx
 
-    def snapshot(self, now: float) -> dict[str, RobotSnapshot]:
+    def snapshot(self, now: float, loop_stats: bool = True) -> dict[str, RobotSnapshot]:
         """Every robot now. The lock is taken robot by robot, and only while
         the session is read, not while its rows are copied (see
         ``Session.snapshot``): the receive loop never waits for a snapshot."""
         with self._state_lock:
             sessions = list(self.sessions.values())
-        return {s.robot: s.snapshot(now, self._state_lock) for s in sessions}
+        return {s.robot: s.snapshot(now, self._state_lock, loop_stats) for s in sessions}
 
     def history(self, robot: str, since_rx: float | None = None) -> dict[str, np.ndarray]:
         """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``);

@@ -4,6 +4,7 @@ link states, ring buffers, and poses equal to the offline recompute."""
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import replace
 
 import numpy as np
@@ -80,6 +81,10 @@ def test_a_robot_without_a_profile_is_kept_but_not_recomputed(practice_profile):
     assert snap.messages == len(messages) and snap.pose is None
     assert snap.reported == pytest.approx(tuple(messages[-1]["pose"]))
     assert snap.loop_p50_s == pytest.approx(0.02)
+    # the page's snapshot skips the loop statistics (it computes its own) and nothing else
+    light = hub.snapshot(RX0 + 0.5, loop_stats=False)["practice-bot"]
+    assert math.isnan(light.loop_p50_s) and math.isnan(light.loop_mean_s)
+    assert light.messages == snap.messages and light.reported == snap.reported and light.state is snap.state
     assert len(recorder.samples) == len(messages)
     # the first message fixes the ticks length of a robot without a profile
     feed(hub, [dict(messages[-1], seq=10_000, ticks=[1, 2])])
