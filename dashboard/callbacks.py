@@ -210,21 +210,24 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
     @app.callback(
         Output(ids.MESSAGE, "children"),
         Output(ids.REPLAY_BAR, "className", allow_duplicate=True),
+        Output(ids.BACK_TO_LIVE, "className", allow_duplicate=True),
         Input(ids.OPEN, "n_clicks"),
         Input(ids.BACK_TO_LIVE, "n_clicks"),
         State(ids.RECORDING_PATH, "value"),
         prevent_initial_call=True,
     )
     def open_recording(_open, _back, path):
-        if ctx.triggered_id == ids.BACK_TO_LIVE:
+        # The last click counts when two were merged into one call.
+        if triggered_ids()[-1:] == [ids.BACK_TO_LIVE]:
             if station.show_live():
-                return "showing the live receiver", "replay-bar hidden"
-            return "no live receiver in this run", no_update
+                # The replay bar's callback, which shows this button, stops with the bar: hide it here.
+                return "showing the live receiver", "replay-bar hidden", "button hidden"
+            return "no live receiver in this run", no_update, no_update
         if not path or not path.strip():
-            return "type the path of a recording first", no_update
+            return "type the path of a recording first", no_update, no_update
         try:
-            return station.open(path.strip()), "replay-bar"
+            return station.open(path.strip()), "replay-bar", no_update
         except PodwatchError as exc:
-            return f"cannot open: {exc}", no_update
+            return f"cannot open: {exc}", no_update, no_update
         except OSError as exc:
-            return f"cannot open {path.strip()}: {exc.strerror or exc}", no_update
+            return f"cannot open {path.strip()}: {exc.strerror or exc}", no_update, no_update

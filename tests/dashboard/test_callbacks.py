@@ -18,9 +18,9 @@ import pytest
 
 from dashboard import callbacks, ids, layout
 from dashboard.app import create_app
-from dashboard.sources import ReplaySource, Station
+from dashboard.sources import LiveSource, ReplaySource, Station
 from receiver.recording import read_recording
-from receiver.session import LinkState, RobotSnapshot
+from receiver.session import Hub, LinkState, RobotSnapshot
 
 REVERSED = Path(__file__).resolve().parents[2] / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"
 
@@ -177,3 +177,18 @@ def test_an_update_paints_every_readout_and_the_table_once_a_second():
     state.update({f"{ids.REQUEST}.data": {"tick": 3}, f"{ids.CURSOR}.data": second})
     third = call(app, f"{ids.CURSOR}.data", state, [f"{ids.REQUEST}.data"])[ids.CURSOR]["data"]
     assert set(third["paint"]["html"]) == {ids.LINK_TABLE} and ids.STATUS in third["paint"]["text"]
+
+
+def test_back_to_live_hides_the_replay_bar_and_itself():
+    # The replay bar's callback, which shows the button, stops asking once the
+    # bar is hidden: the button stayed on the page, offering a way back to where
+    # the page already was.
+    replay = ReplaySource(read_recording(REVERSED), clock=lambda: 0.0)
+    station = Station(live=LiveSource(Hub({})), replay=replay)
+    app = create_app(station)
+    values = {f"{ids.OPEN}.n_clicks": 0, f"{ids.BACK_TO_LIVE}.n_clicks": 1, f"{ids.RECORDING_PATH}.value": ""}
+    out = call(app, f"{ids.MESSAGE}.children", values, [f"{ids.BACK_TO_LIVE}.n_clicks"])
+    assert out[ids.MESSAGE]["children"] == "showing the live receiver"
+    assert out[ids.REPLAY_BAR]["className"] == "replay-bar hidden"
+    assert out[ids.BACK_TO_LIVE]["className"] == "button hidden"
+    assert station.replay is None
