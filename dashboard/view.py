@@ -35,6 +35,9 @@ VIEWS = ("track", "poses", "errors", "loop")
 # below 5 refreshes a second on two cores; half of them per refresh keeps
 # each graph moving at half the refresh rate and the page above it.
 APPEND_GROUPS = (("track", "errors"), ("poses", "loop"))  # the loop histogram goes with "loop"
+# A histogram is a whole new figure for the page to lay out and draw, not an
+# append; its shape over a window barely moves in a second.
+HISTOGRAM_EVERY_S = 1.0
 
 
 @dataclass
@@ -133,10 +136,12 @@ def refresh(
             rows["pose"], rows["position_error"], rows["heading_error"], rows["kind"], metres_per_unit or math.nan
         )
     out.loop = readouts.loop_timing(rows["loop"], settings.loop_threshold_s)
-    if "loop" in names:
+    hist_at = -math.inf if full else cursor.get("hist_at", -math.inf)
+    if "loop" in names and not 0.0 <= now - hist_at < HISTOGRAM_EVERY_S:
         out.histogram = figures.loop_histogram(
             rows["loop"] * 1000.0, settings.loop_threshold_s * 1000.0, out.loop.mean_s * 1000.0, out.loop.p95_s * 1000.0
         )
+        hist_at = now
     out.cursor = {
         "robot": robot,
         "key": key,
@@ -145,6 +150,7 @@ def refresh(
         "turn": turn,  # the group the next append goes to
         "full_at": now if full else cursor["full_at"],
         "max_points": max_points,
+        "hist_at": hist_at,  # when the histogram was last sent
     }
     return out
 

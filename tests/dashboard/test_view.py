@@ -60,6 +60,16 @@ def test_first_refresh_draws_everything_then_only_new_rows_follow(replay):
     np.testing.assert_allclose(update["x"][0], np.round(new["rx"] - replay.origin, 3))
     np.testing.assert_allclose(update["y"][0], np.round(new["pose"][:, 0], 3))
     assert third.cursor["rx"] == [second.cursor["rx"][0], new["rx"][-1]]
+    # The histogram is redrawn at most once a second (it was 1.5 s ago here), then not within the second.
+    replay.seek(5.7)
+    fourth = view.refresh(station, Settings(points=60_000), "practice-bot", 60.0, third.cursor)
+    replay.seek(5.9)
+    fifth = view.refresh(station, Settings(points=60_000), "practice-bot", 60.0, fourth.cursor)
+    assert set(fifth.extensions) == {"poses", "loop"} and fifth.histogram is None
+    replay.seek(6.6)
+    seventh = view.refresh(station, Settings(points=60_000), "practice-bot", 60.0,
+                           view.refresh(station, Settings(points=60_000), "practice-bot", 60.0, fifth.cursor).cursor)
+    assert set(seventh.extensions) == {"poses", "loop"} and seventh.histogram is not None
 
 
 def test_new_rows_are_thinned_to_the_density_of_the_window(replay):
