@@ -31,7 +31,11 @@ from receiver.protocol import Sample, decode_message
 from receiver.recompute import Columns, concat_columns
 
 RECORDING_VERSION = 1
-_CHUNK_BYTES = 16 * 1024 * 1024
+# Blocks of 4 MB rather than 16: the decoded objects of a smaller block fit
+# in memory the small-object allocator still holds from the last, so fewer
+# pages are faulted in afresh (1M messages: 200,000 -> 133,000 page faults,
+# peak memory 140 -> 70 MB; CPU time the same within this machine's noise).
+_CHUNK_BYTES = 4 * 1024 * 1024
 GZIP_MAGIC = b"\x1f\x8b"
 
 Progress = Callable[[int, int], None]
