@@ -158,49 +158,80 @@ def decode(data: bytes) -> tuple[list[Sample], list[Failure]]:
     """Decode one datagram or frame: a message or a JSON array of messages.
 
     Every valid message in a batch is returned even when others in it fail.
+    The receivers call ``decode_keeping_raw``, which also keeps each
+    message's bytes for the recording; this is the same without them.
+    """
+    samples, failures, _ = decode_keeping_raw(data)
+    return samples, failures
+
+
+def decode_keeping_raw(data: bytes) -> tuple[list[Sample], list[Failure], list[bytes]]:
+    """Samples, failures, and the bytes of each valid message as received, aligned with the samples.
+
+    For live recordings, which keep fields this protocol does not know. A
+    single message's bytes are the datagram (or frame) itself, whitespace
+    around the object included, at no cost; only a batch is parsed a second
+    time, to find where each element lies.
     """
     if len(data) > MAX_MESSAGE_BYTES:
-        return [], [Failure(Reason.TOO_LARGE, f"{len(data)} bytes, limit {MAX_MESSAGE_BYTES}")]
+        return [], [Failure(Reason.TOO_LARGE, f"{len(data)} bytes, limit {MAX_MESSAGE_BYTES}")], []
     try:
         decoded = _one_or_batch.decode(data)
     except (msgspec.MsgspecError, RecursionError) as exc:
         return _decode_items(data, exc)
     if isinstance(decoded, Sample):
         if decoded.robot in _good_names:  # the usual single message: a fifth of split_bad_names' cost
-            return [decoded], []
-        return split_bad_names([decoded])
+            return [decoded], [], [data]
+        samples, failures = split_bad_names([decoded])
+        return samples, failures, [data] if samples else []
     if len(decoded) > MAX_BATCH:
-        return [], [Failure(Reason.TOO_LARGE, f"batch of {len(decoded)} messages, limit {MAX_BATCH}")]
-    return split_bad_names(decoded)
+        return [], [Failure(Reason.TOO_LARGE, f"batch of {len(decoded)} messages, limit {MAX_BATCH}")], []
+    samples, failures = split_bad_names(decoded)
+    # The batch decoded whole, so it splits into as many elements, in order.
+    items = _raw_items.decode(data)
+    if failures:
+        kept = set(map(id, samples))
+        items = [raw for sample, raw in zip(decoded, items) if id(sample) in kept]
+    return samples, failures, [bytes(raw) for raw in items]
 
 
 def _decode_items(
     data: bytes, first_error: msgspec.MsgspecError | RecursionError
-) -> tuple[list[Sample], list[Failure]]:
-    """Slow path after a failure: separate a batch's good elements from bad ones."""
+) -> tuple[list[Sample], list[Failure], list[bytes]]:
+    """Slow path after a failure: separate a batch's good elements from bad
+    ones; the bytes of each good one come third."""
     stripped = data.lstrip()
     if not stripped.startswith(b"["):
-        return [], [_named(classify_error(first_error, data), data)]
+        return [], [_named(classify_error(first_error, data), data)], []
     try:
         items = _raw_items.decode(data)
     except msgspec.DecodeError as exc:
         repaired = _NON_FINITE_VALUE.sub(_OUT_OF_RANGE_NUMBER, data)
         if repaired == data:
-            return [], [classify_error(exc, data)]
+            return [], [classify_error(exc, data)], []
         try:
             items = _raw_items.decode(repaired)
         except (msgspec.MsgspecError, RecursionError):
-            return [], [classify_error(exc, data)]
+            return [], [classify_error(exc, data)], []
     except (msgspec.MsgspecError, RecursionError) as exc:
-        return [], [classify_error(exc, data)]
+        return [], [classify_error(exc, data)], []
     if len(items) > MAX_BATCH:
-        return [], [Failure(Reason.TOO_LARGE, f"batch of {len(items)} messages, limit {MAX_BATCH}")]
+        return [], [Failure(Reason.TOO_LARGE, f"batch of {len(items)} messages, limit {MAX_BATCH}")], []
     samples: list[Sample] = []
     failures: list[Failure] = []
-    for raw in items:
-        result = decode_message(bytes(raw))
-        (samples if isinstance(result, Sample) else failures).append(result)
-    return samples, failures
+    # After a rewrite these are the rewritten bytes: a good element differs
+    # from what was sent only where a NaN or Infinity stood as a value (of a
+    # field the protocol does not know, or inside a string), and reads back.
+    raws: list[bytes] = []
+    for item in items:
+        raw = bytes(item)
+        result = decode_message(raw)
+        if isinstance(result, Sample):
+            samples.append(result)
+            raws.append(raw)
+        else:
+            failures.append(result)
+    return samples, failures, raws
 
 
 def encode(sample: Sample | list[Sample]) -> bytes:

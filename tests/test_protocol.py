@@ -1,5 +1,6 @@
 """The decoder's bad-input matrix: each malformed kind maps to its reason, and
-a batch keeps its good elements whatever else it holds."""
+a batch keeps its good elements whatever else it holds; decode_keeping_raw
+(which decode wraps) gives each good message's bytes, in step with it."""
 
 from __future__ import annotations
 
@@ -7,7 +8,16 @@ import json
 
 import pytest
 
-from receiver.protocol import MAX_BATCH, Failure, Reason, Sample, decode, decode_message, encode
+from receiver.protocol import (
+    MAX_BATCH,
+    Failure,
+    Reason,
+    Sample,
+    decode,
+    decode_keeping_raw,
+    decode_message,
+    encode,
+)
 from tests.malformed import DECODER_CASES, GOOD, message, raw
 
 
@@ -28,8 +38,8 @@ def test_optional_fields_may_be_absent():
 
 @pytest.mark.parametrize("label, payload, reason", DECODER_CASES, ids=[c[0] for c in DECODER_CASES])
 def test_each_malformed_kind_has_its_reason(label, payload, reason):
-    samples, failures = decode(payload)
-    assert samples == []
+    samples, failures, raws = decode_keeping_raw(payload)
+    assert samples == [] and raws == []  # nothing of a refused message is kept for the recording
     assert [f.reason for f in failures] == [reason], failures
     assert "\n" not in failures[0].detail  # one line, fit for a log
 
@@ -97,3 +107,40 @@ def test_failure_prints_as_reason_and_detail():
 
 def test_good_message_is_unchanged_by_the_matrix_helpers():
     assert json.loads(raw()) == GOOD
+
+
+def test_keeping_raw_a_single_message_gives_the_datagram_itself():
+    # whitespace and line breaks around and inside the object, and a field of the team's own
+    data = b' \r\n{"v": 1,\r\n "robot": "practice-bot", "seq": 7, "motor_power": 0.75,\n "t": 1.25,\t"ticks": [10, -20, 30]}\n'
+    samples, failures, raws = decode_keeping_raw(data)
+    assert failures == [] and samples[0].seq == 7
+    assert raws == [data]
+
+
+def test_keeping_raw_a_batch_gives_each_element_as_sent():
+    elements = [raw(seq=1), raw(seq=2, motor_power=0.5), b'{"v":1,\n"robot":"practice-bot",\r\n"seq":3,"t":1.5,"ticks":[1,2,3]}']
+    data = b"[ " + b" ,\n".join(elements) + b"\r\n]"
+    samples, failures, raws = decode_keeping_raw(data)
+    assert failures == [] and [s.seq for s in samples] == [1, 2, 3]
+    assert raws == elements
+
+
+BAD_AMONG_GOOD = {
+    # the array decodes whole, and a name is refused afterwards
+    "bad robot name": raw(robot="no spaces allowed", seq=2),
+    # the array does not decode as samples: each element is decoded on its own
+    "wrong type": raw(seq="two"),
+    # not even JSON: the array is split after its NaN is rewritten
+    "nan": raw(t=123456.5).replace(b"123456.5", b"NaN"),
+}
+
+
+@pytest.mark.parametrize("bad", BAD_AMONG_GOOD.values(), ids=BAD_AMONG_GOOD.keys())
+def test_keeping_raw_stays_aligned_with_bad_elements_among_good_ones(bad):
+    good = [raw(seq=1, motor_power=0.25), raw(seq=3), raw(seq=4, note="fine")]
+    data = b"[" + b", ".join([good[0], bad, good[1], bad, good[2]]) + b"]"
+    samples, failures, raws = decode_keeping_raw(data)
+    assert [s.seq for s in samples] == [1, 3, 4] and len(failures) == 2
+    assert raws == good
+    assert [decode_message(r) for r in raws] == samples
+

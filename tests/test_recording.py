@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import gzip
+import json
 from pathlib import Path
 
 import numpy as np
@@ -10,7 +11,8 @@ import pytest
 
 from receiver.errors import RecordingError
 from receiver.profile import load_profile
-from receiver.protocol import Sample
+from receiver.protocol import Sample, encode
+from receiver.recompute import COLUMN_NAMES
 from receiver.recording import FLUSH_INTERVAL_S, GZIP_MAGIC, RecordingWriter, read_recording
 
 FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
@@ -165,3 +167,90 @@ def test_large_burst_reaches_the_file_before_a_flush(tmp_path: Path) -> None:
 def test_unwritable_path_is_one_line_error(tmp_path: Path) -> None:
     with pytest.raises(RecordingError, match=r"cannot write: No such file or directory$"):
         RecordingWriter(tmp_path / "missing" / "rec.jsonl", [PROFILE])
+
+
+def as_sent(samples: list[Sample]) -> tuple[list[dict], list[bytes]]:
+    """Each sample as a robot might send it: with fields of the team's own,
+    some spread over several lines (LF or CRLF), some padded, some carrying
+    an "rx" of the robot's own (seeded by position)."""
+    messages, raws = [], []
+    for i, sample in enumerate(samples):
+        message = json.loads(encode(sample))
+        message.pop("rx", None)
+        message["motor_power"] = 0.125 * (i % 9) - 0.5
+        message["note"] = f"lap {i}: ok"
+        if i % 4 == 1:
+            message["rx"] = 12.5  # the robot's own clock; the receiver's must win
+        text = json.dumps(message, indent=1 if i % 5 == 0 else None)
+        if i % 7 == 0:
+            text = text.replace("\n", "\r\n")
+        if i % 11 == 0:
+            text = f" \t{text}\r\n"
+        messages.append(message)
+        raws.append(text.encode())
+    return messages, raws
+
+
+def stamp_unevenly(samples: list[Sample]) -> list[float]:
+    """Receiver times that need all 17 significant digits to read back exactly."""
+    rng = np.random.default_rng(7)
+    rx = (RX0 + np.cumsum(rng.uniform(0.001, 0.02, len(samples)))).tolist()
+    for sample, value in zip(samples, rx):
+        sample.rx = value
+    return rx
+
+
+@pytest.mark.parametrize("name", ["rec.jsonl", "rec.jsonl.gz"])
+def test_messages_are_recorded_as_received_plus_rx(tmp_path: Path, name: str) -> None:
+    samples = make_samples(300)
+    rx = stamp_unevenly(samples)
+    messages, raws = as_sent(samples)
+    raws_with_gaps = [None if i % 13 == 3 else r for i, r in enumerate(raws)]  # a sample without its bytes
+    path = tmp_path / name
+    with RecordingWriter(path, [PROFILE], created=CREATED) as writer:
+        for start, stop in [(0, 1), (1, 17), (17, 150), (150, 300)]:
+            writer.write(samples[start:stop], raws=raws_with_gaps[start:stop])
+    lines = (gzip.decompress(path.read_bytes()) if name.endswith(".gz") else path.read_bytes()).split(b"\n")
+    assert lines[-1] == b"" and len(lines) == 1 + len(samples) + 1  # header, one line each, final newline
+    for i, line in enumerate(lines[1:-1]):
+        assert b"\r" not in line
+        got = json.loads(line)
+        assert got["rx"] == rx[i]  # exactly: the float reads back as written
+        if raws_with_gaps[i] is None:
+            assert got == json.loads(encode(samples[i]))
+            continue
+        assert got == {**messages[i], "rx": rx[i]}  # unknown fields and their values kept
+        # byte for byte the object as sent, line breaks made spaces, with the rx key last
+        as_one_line = raws[i].strip().replace(b"\r", b" ").replace(b"\n", b" ")
+        head, rx_text = line.rsplit(b',"rx":', 1)
+        assert head + b"}" == as_one_line and float(rx_text.removesuffix(b"}")) == rx[i]
+
+    # read back: the same columns as a recording of the samples encoded
+    # (no unknown fields, no robot "rx"), the receiver's rx winning
+    encoded = tmp_path / "encoded.jsonl"
+    with RecordingWriter(encoded, [PROFILE], created=CREATED) as writer:
+        writer.write(samples)
+    got, want = read_recording(path).robots["practice-bot"], read_recording(encoded).robots["practice-bot"]
+    for column in COLUMN_NAMES:
+        np.testing.assert_array_equal(getattr(got, column), getattr(want, column), err_msg=column)
+    np.testing.assert_array_equal(got.rx, rx)
+
+
+def test_the_receivers_rx_wins_on_every_read_path(tmp_path: Path) -> None:
+    samples = make_samples(40)
+    rx = stamp_unevenly(samples)
+    _, raws = as_sent(samples)
+    path = tmp_path / "rec.jsonl"
+    with RecordingWriter(path, [PROFILE]) as writer:
+        writer.write(samples, raws=raws)
+    header, body = path.read_bytes().split(b"\n", 1)
+    variants = {
+        "bulk": body,
+        "line by line, after a bad line": b"not a message\n" + body,
+        "unterminated last line": body.rstrip(b"\n"),
+    }
+    for label, content in variants.items():
+        variant = tmp_path / "variant.jsonl"
+        variant.write_bytes(header + b"\n" + content)
+        data = read_recording(variant)
+        np.testing.assert_array_equal(data.robots["practice-bot"].rx, rx, err_msg=label)

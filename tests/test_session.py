@@ -7,12 +7,13 @@ import json
 import math
 from dataclasses import replace
 
+import msgspec
 import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from receiver.protocol import Reason, Sample, decode
+from receiver.protocol import Reason, Sample, decode, decode_keeping_raw, decode_message
 from receiver.recompute import Tracker, columns_from_samples
 from receiver.ring import RingBuffer
 from receiver.session import TRANSITIONS, Hub, LinkEvent, LinkState
@@ -39,10 +40,13 @@ def offline(profile, messages):
 class ListRecorder:
     def __init__(self):
         self.samples: list[Sample] = []
+        self.raws: list[bytes | None] = []
         self.flushes = 0
 
-    def write(self, samples):
+    def write(self, samples, rx=None, raws=None):
+        assert raws is None or len(raws) == len(samples)
         self.samples.extend(samples)
+        self.raws.extend([None] * len(samples) if raws is None else raws)
 
     def flush(self, now=None):
         self.flushes += 1
@@ -89,6 +93,35 @@ def test_a_robot_without_a_profile_is_kept_but_not_recomputed(practice_profile):
     # the first message fixes the ticks length of a robot without a profile
     feed(hub, [dict(messages[-1], seq=10_000, ticks=[1, 2])])
     assert hub.errors == {Reason.WRONG_TICKS_LENGTH: 1}
+
+
+def test_the_recorder_gets_the_bytes_of_each_accepted_message(practice_profile):
+    recorder = ListRecorder()
+    hub = Hub({practice_profile.name: practice_profile}, recorder=recorder, max_robots=2)
+    good = [dict(m, motor_power=0.5) for m in constant_twist_messages(practice_profile, seconds=0.2)]
+    datagrams = [
+        json.dumps(good[0]).encode(),
+        json.dumps(dict(good[1], ticks=[1, 2])).encode(),  # refused by the hub: wrong ticks length
+        json.dumps(good[1:4]).encode(),  # a batch
+        json.dumps([dict(good[4], seq="x"), good[4], dict(good[5], robot="visitor-0")]).encode(),
+        json.dumps(dict(good[5], robot="visitor-1")).encode(),  # refused by the hub: one robot too many
+        json.dumps(good[5]).encode(),
+    ]
+    for k, data in enumerate(datagrams):
+        samples, failures, raws = decode_keeping_raw(data)
+        hub.ingest(samples, failures, RX0 + k, "test", raws=raws)
+        if k % 2:
+            hub.process(RX0 + k)
+    hub.ingest(*decode(json.dumps(good[6]).encode()), RX0 + 9, "test")  # without its bytes, as a replay
+    hub.process(RX0 + 9)
+    assert hub.errors == {Reason.WRONG_TICKS_LENGTH: 1, Reason.WRONG_TYPE: 1, Reason.TOO_MANY_ROBOTS: 1}
+    assert [(s.robot, s.seq) for s in recorder.samples] == [
+        *[("practice-bot", k) for k in range(5)], ("visitor-0", 5), ("practice-bot", 5), ("practice-bot", 6)
+    ]
+    assert recorder.raws[-1] is None
+    for sample, raw in zip(recorder.samples[:-1], recorder.raws):
+        assert b"motor_power" in raw
+        assert decode_message(raw) == msgspec.structs.replace(sample, rx=None)
 
 
 def test_gaps_duplicates_and_late_samples_are_counted(practice_profile):

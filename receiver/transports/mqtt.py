@@ -1,12 +1,13 @@
 """MQTT link: ingest from <prefix>/+/samples and, optionally, forward to the broker.
 
 Owns one broker connection (aiomqtt). Incoming payloads go through
-``protocol.decode`` into ``Hub.ingest``. With forwarding on, every valid
-sample that reached the hub over UDP or WebSocket is republished in batches
-(JSON arrays of at most 256 messages and 64 KiB, one per robot per interval)
-together with each robot's latest recomputed pose on <prefix>/<robot>/pose.
-It never re-forwards what came from MQTT, and subscribes with MQTT 5
-"no local" so its own publications never come back to it.
+``protocol.decode_keeping_raw`` into ``Hub.ingest``. With forwarding on,
+every valid sample that reached the hub over UDP or WebSocket is republished
+in batches (JSON arrays of at most 256 messages and 64 KiB, one per robot per
+interval) together with each robot's latest recomputed pose on
+<prefix>/<robot>/pose. It never re-forwards what came from MQTT, and
+subscribes with MQTT 5 "no local" so its own publications never come back
+to it.
 """
 
 from __future__ import annotations
@@ -21,7 +22,7 @@ import aiomqtt
 import msgspec
 from paho.mqtt.subscribeoptions import SubscribeOptions
 
-from receiver.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, MQTT_PREFIX, Sample, decode
+from receiver.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, MQTT_PREFIX, Sample, decode_keeping_raw
 from receiver.session import Hub, PoseUpdate
 
 DEFAULT_PREFIX = MQTT_PREFIX
@@ -161,8 +162,8 @@ class MqttLink:
                 payload = payload.encode()
             elif not isinstance(payload, (bytes, bytearray)):
                 payload = b""
-            samples, failures = decode(bytes(payload))
-            ingest(samples, failures, rx, SOURCE)
+            samples, failures, raws = decode_keeping_raw(bytes(payload))
+            ingest(samples, failures, rx, SOURCE, raws=raws)
 
     async def _forward(self, client: aiomqtt.Client) -> None:
         while True:

@@ -1,14 +1,15 @@
 """UDP ingest: one receive loop in its own thread.
 
-Owns the UDP socket and nothing else: bytes in, ``protocol.decode``, then
-``Hub.ingest``. A plain loop with a large kernel buffer is used instead of an
-asyncio datagram endpoint because it kept up with about twice the rate on
-these machines (DESIGN.md, "Measured"). The loop takes whatever datagrams
-have arrived, then runs ``Hub.process`` on them itself: handing each datagram
-to the pump thread instead cost a GIL hand-over per datagram, and at 20,000
-datagrams/s the two threads spent more time waiting for each other than
-working (tests/bench/bench_udp.py). It never parses JSON itself and never
-lets a bad datagram stop the loop.
+Owns the UDP socket and nothing else: bytes in,
+``protocol.decode_keeping_raw``, then ``Hub.ingest``. A plain loop with a
+large kernel buffer is used instead of an asyncio datagram endpoint because
+it kept up with about twice the rate on these machines (DESIGN.md,
+"Measured"). The loop takes whatever datagrams have arrived, then runs
+``Hub.process`` on them itself: handing each datagram to the pump thread
+instead cost a GIL hand-over per datagram, and at 20,000 datagrams/s the two
+threads spent more time waiting for each other than working
+(tests/bench/bench_udp.py). It never parses JSON itself and never lets a bad
+datagram stop the loop.
 
 System calls are the dearest part of a small pass (2.5 to 5 us each on these
 machines): the loop waits in a blocking receive rather than in select, and
@@ -26,7 +27,7 @@ import sys
 import threading
 import time
 
-from receiver.protocol import MAX_MESSAGE_BYTES, decode
+from receiver.protocol import MAX_MESSAGE_BYTES, decode_keeping_raw
 from receiver.session import Hub
 
 # Our own choice of port, unassigned as far as we know; --udp overrides it.
@@ -100,8 +101,8 @@ class UdpReceiver:
                 break
             flags = socket.MSG_DONTWAIT
             taken += 1
-            samples, failures = decode(data)
-            ingest(samples, failures, rx, SOURCE, wake=False)
+            samples, failures, raws = decode_keeping_raw(data)
+            ingest(samples, failures, rx, SOURCE, wake=False, raws=raws)
         self.datagrams += taken
         return taken
 

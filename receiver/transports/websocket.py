@@ -1,10 +1,10 @@
 """WebSocket ingest: each text (or binary) frame is one datagram's worth of JSON.
 
 Owns the WebSocket server and its optional shared token, nothing more:
-frame bytes go through ``protocol.decode`` into ``Hub.ingest``. It never
-parses JSON itself. A client without the token is refused at the handshake
-with HTTP 401; a frame over 64 KiB closes that connection (close code 1009,
-counted as too_large) and leaves every other connection running.
+frame bytes go through ``protocol.decode_keeping_raw`` into ``Hub.ingest``.
+It never parses JSON itself. A client without the token is refused at the
+handshake with HTTP 401; a frame over 64 KiB closes that connection (close
+code 1009, counted as too_large) and leaves every other connection running.
 """
 
 from __future__ import annotations
@@ -19,7 +19,7 @@ from websockets.exceptions import ConnectionClosed
 from websockets.frames import CloseCode
 from websockets.http11 import Request, Response
 
-from receiver.protocol import MAX_MESSAGE_BYTES, Failure, Reason, decode
+from receiver.protocol import MAX_MESSAGE_BYTES, Failure, Reason, decode_keeping_raw
 from receiver.session import Hub
 
 DEFAULT_WS_PORT = 47475  # our own choice, next to the UDP default
@@ -81,8 +81,8 @@ class WebSocketReceiver:
             while True:
                 data = await connection.recv(decode=False)
                 rx = time.time()
-                samples, failures = decode(data)
-                ingest(samples, failures, rx, SOURCE)
+                samples, failures, raws = decode_keeping_raw(data)
+                ingest(samples, failures, rx, SOURCE, raws=raws)
         except ConnectionClosed as closed:
             if closed.sent is not None and closed.sent.code == CloseCode.MESSAGE_TOO_BIG:
                 failure = Failure(Reason.TOO_LARGE, f"frame over {MAX_MESSAGE_BYTES} bytes; connection closed")

@@ -57,3 +57,24 @@ def handled(receiver: LiveReceiver) -> int:
     """Messages the hub has dealt with: accepted plus refused."""
     snapshot = receiver.hub.snapshot(time.time())
     return sum(s.messages for s in snapshot.values()) + sum(receiver.hub.errors.values())
+
+
+def listen_on(config: ServeConfig, transport: str, request) -> None:
+    """Have ``config`` listen on one transport ("udp", "ws" or "mqtt") on
+    loopback; MQTT goes through the test's own Mosquitto broker."""
+    if transport == "udp":
+        config.udp = ("127.0.0.1", 0)
+    elif transport == "ws":
+        config.ws = ("127.0.0.1", 0)
+    else:
+        config.mqtt = request.getfixturevalue("mosquitto")
+
+
+def sender_url(receiver: LiveReceiver, config: ServeConfig, transport: str) -> str:
+    """Where a robot sends to reach ``receiver`` over ``transport``, once it listens."""
+    if transport == "udp":
+        return "udp://%s:%d" % receiver.udp.address
+    if transport == "ws":
+        return "ws://%s:%d" % receiver.ws.address
+    wait_until(receiver.mqtt.connected.is_set, "the MQTT subscription")
+    return config.mqtt

@@ -16,7 +16,7 @@ from receiver.live import ServeConfig
 from receiver.recording import read_recording
 from receiver.simulate import simulate
 from tests.conftest import FIXTURES
-from tests.transports.harness import handled, live_receiver, wait_until
+from tests.transports.harness import handled, listen_on, live_receiver, sender_url, wait_until
 
 
 @pytest.mark.parametrize("transport", ["udp", "ws", "mqtt"])
@@ -24,20 +24,9 @@ def test_live_poses_equal_recompute_of_the_recording(transport, practice_profile
     run = simulate(practice_profile, rate_hz=100.0, duration_s=4.0, seed=11, near_wrap=True)
     recording = tmp_path / "live.jsonl"
     config = ServeConfig({"practice-bot": practice_profile}, record=recording)
-    if transport == "udp":
-        config.udp = ("127.0.0.1", 0)
-    elif transport == "ws":
-        config.ws = ("127.0.0.1", 0)
-    else:
-        config.mqtt = request.getfixturevalue("mosquitto")
+    listen_on(config, transport, request)
     with live_receiver(config) as receiver:
-        if transport == "udp":
-            url = "udp://%s:%d" % receiver.udp.address
-        elif transport == "ws":
-            url = "ws://%s:%d" % receiver.ws.address
-        else:
-            wait_until(receiver.mqtt.connected.is_set, "the MQTT subscription")
-            url = config.mqtt
+        url = sender_url(receiver, config, transport)
 
         # The simulated robot streams in real time through `podwatch simulate --to`.
         profile_path = str(FIXTURES / "practice-bot.toml")
