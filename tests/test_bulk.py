@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import platform
+
 import numpy as np
 import pytest
 
@@ -97,3 +99,10 @@ def test_workers_reading_byte_ranges_find_what_one_process_finds(tmp_path, monke
         assert pool is not None or path.stat().st_size == 0
     parallel = _outcome(path)
     assert parallel == sequential
+
+
+@pytest.mark.skipif(platform.libc_ver()[0] != "glibc", reason="the setting is glibc's (malloc.h: mallopt)")
+def test_the_c_allocator_takes_the_settings_that_keep_freed_memory():
+    # mallopt answers 0 for a parameter or value it refuses: then every block's
+    # temporaries would be faulted in afresh again (DEVELOPERS.md).
+    assert bulk.keep_freed_memory() is True
