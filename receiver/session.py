@@ -420,7 +420,7 @@ class Hub:
         self.errors: Counter = Counter()  # every refused message, by reason
         self.last_error: str | None = None
         self.sessions: dict[str, Session] = {}
-        self._listeners: list[Listener] = []
+        self._listeners: list[tuple[Callable, bool]] = []
         self._pending: list[tuple[list[Sample], list[Failure], float, str, list[bytes] | None]] = []
         self._pending_lock = threading.Lock()
         self._state_lock = threading.RLock()
@@ -435,9 +435,14 @@ class Hub:
     def _new_session(self, robot: str, profile: Profile | None) -> Session:
         return Session(robot, profile, self.window_s, self.max_rows, self.method)
 
-    def add_listener(self, listener: Listener) -> None:
-        """Called after each ``process`` that accepted samples; it must be quick."""
-        self._listeners.append(listener)
+    def add_listener(self, listener: Listener, with_raws: bool = False) -> None:
+        """Called after each ``process`` that accepted samples; it must be quick.
+
+        ``with_raws``: called with a third list, each accepted sample's bytes
+        as received (None where it came without them), for a listener that
+        passes messages on as they were sent (MQTT forwarding).
+        """
+        self._listeners.append((listener, with_raws))
 
     def ingest(
         self,
@@ -517,8 +522,11 @@ class Hub:
             if not now - oldest_live_rx <= self.quiet_after_s:
                 self.tick(now)
             if accepted:
-                for listener in self._listeners:
-                    listener(accepted, updates)
+                for listener, with_raws in self._listeners:
+                    if with_raws:
+                        listener(accepted, updates, kept_raws)
+                    else:
+                        listener(accepted, updates)
             return len(accepted)
 
     def _admit(self, sample: Sample) -> bool:

@@ -3,11 +3,11 @@
 Owns one broker connection (aiomqtt). Incoming payloads go through
 ``protocol.decode_keeping_raw`` into ``Hub.ingest``. With forwarding on,
 every valid sample that reached the hub over UDP or WebSocket is republished
-in batches (JSON arrays of at most 256 messages and 64 KiB, one per robot per
-interval) together with each robot's latest recomputed pose on
-<prefix>/<robot>/pose. It never re-forwards what came from MQTT, and
-subscribes with MQTT 5 "no local" so its own publications never come back
-to it.
+as received (a team's own fields included) in batches (JSON arrays of at
+most 256 messages and 64 KiB, one per robot per interval) together with
+each robot's latest recomputed pose on <prefix>/<robot>/pose. It never
+re-forwards what came from MQTT, and subscribes with MQTT 5 "no local" so
+its own publications never come back to it.
 """
 
 from __future__ import annotations
@@ -115,13 +115,25 @@ class MqttLink:
         self._poses: dict[str, PoseUpdate] = {}
         self._encoder = msgspec.json.Encoder()
         if forward:
-            hub.add_listener(self._on_processed)
+            hub.add_listener(self._on_processed, with_raws=True)
 
-    def _on_processed(self, accepted: list[tuple[Sample, str]], updates: dict[str, PoseUpdate]) -> None:
-        """Hub listener (pump thread): hand the news to the event loop."""
+    def _on_processed(
+        self, accepted: list[tuple[Sample, str]], updates: dict[str, PoseUpdate], raws: list[bytes | None]
+    ) -> None:
+        """Hub listener (pump thread): hand the news to the event loop.
+
+        A message goes on as the robot sent it, its team's own fields
+        included, so that a receiver on the other side records what this
+        one records; one without its bytes is encoded.
+        """
         if self._loop is None:
             return
-        encoded = [(s.robot, self._encoder.encode(s)) for s, source in accepted if source != SOURCE]
+        encode = self._encoder.encode
+        encoded = [
+            (s.robot, encode(s) if raw is None else raw.strip())
+            for (s, source), raw in zip(accepted, raws)
+            if source != SOURCE
+        ]
         self._loop.call_soon_threadsafe(self._queue, encoded, updates)
 
     def _queue(self, encoded: list[tuple[str, bytes]], updates: dict[str, PoseUpdate]) -> None:

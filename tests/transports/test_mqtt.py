@@ -31,7 +31,8 @@ def test_batches_respect_the_wire_limits():
 def test_a_second_receiver_watches_the_same_robots(practice_profile, mosquitto, tmp_path):
     run = simulate(practice_profile, rate_hz=100.0, duration_s=3.0, seed=5)
     other = msgspec.structs.replace(run.samples[0], robot="no-profile-bot")
-    payloads = [encode(s) for s in run.samples] + [encode(other)]
+    # each with a field of the team's own, which B's recording must keep too
+    payloads = [encode(s)[:-1] + b',"motor_power":%d}' % k for k, s in enumerate([*run.samples, other])]
     profiles = {"practice-bot": practice_profile}
     a_config = ServeConfig(profiles, udp=("127.0.0.1", 0), mqtt=mosquitto, forward=True, record=tmp_path / "a.jsonl")
     # B forwards too: it must still never republish what it got from the broker
@@ -70,6 +71,9 @@ def test_a_second_receiver_watches_the_same_robots(practice_profile, mosquitto, 
     for robot in snap_a:
         assert snap_a[robot].messages == snap_b[robot].messages
         assert snap_b[robot].duplicates == 0 and snap_b[robot].late == snap_a[robot].late
+    for name in ("a.jsonl", "b.jsonl"):
+        lines = (tmp_path / name).read_bytes().splitlines()[1:]
+        assert sorted(json.loads(line)["motor_power"] for line in lines) == list(range(len(payloads))), name
     pose_a, pose_b = a.hub.history("practice-bot")["pose"], b.hub.history("practice-bot")["pose"]
     np.testing.assert_allclose(pose_b, pose_a, atol=1e-9, rtol=0)
     # the pose topic carries A's latest recompute and its disagreement
