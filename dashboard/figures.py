@@ -205,21 +205,35 @@ def wrapped_degrees(heading_rad: np.ndarray) -> np.ndarray:
     return 180.0 - np.mod(180.0 - deg, 360.0)
 
 
-def _pose_columns(recompute: np.ndarray, reported: np.ndarray) -> list[np.ndarray]:
-    """x, y and heading (deg) of recompute then reported, in trace order."""
-    return [recompute[:, 0], reported[:, 0], recompute[:, 1], reported[:, 1],
-            wrapped_degrees(recompute[:, 2]), wrapped_degrees(reported[:, 2])]
+def break_at_wraps(t: np.ndarray, deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``t`` and ``deg`` with a gap (NaN) between neighbours that a wrap at
+    +-180 degrees puts more than 180 apart: the line would otherwise cross the
+    whole graph and read as a sudden swing of the robot's heading."""
+    jumps = np.flatnonzero(np.abs(np.diff(deg)) > 180.0) + 1
+    if not len(jumps):
+        return t, deg
+    return np.insert(t, jumps, 0.5 * (t[jumps - 1] + t[jumps])), np.insert(deg, jumps, np.nan)
+
+
+def _pose_columns(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray) -> list[tuple[list, list]]:
+    """(t, values) of x, y and heading (deg) of recompute then reported, in
+    trace order; the headings with gaps at their wraps."""
+    tl = as_list(t)
+    columns = [(tl, as_list(v)) for v in (recompute[:, 0], reported[:, 0], recompute[:, 1], reported[:, 1])]
+    for heading in (recompute[:, 2], reported[:, 2]):
+        tw, deg = break_at_wraps(t, wrapped_degrees(heading))
+        columns.append((tl if tw is t else as_list(tw), as_list(deg)))
+    return columns
 
 
 def pose_traces(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, unit: str) -> dict:
-    """x, y (``unit``) and heading (degrees, wrapped to (-180, 180]) against time
-    t (s), from (N, 3) REP 103 poses with headings in radians."""
-    tt = as_list(t)
+    """x, y (``unit``) and heading (degrees, wrapped to (-180, 180], a gap at
+    each wrap) against time t (s), from (N, 3) REP 103 poses with headings in radians."""
     data = []
-    for k, values in enumerate(_pose_columns(recompute, reported)):
+    for k, (tt, values) in enumerate(_pose_columns(t, recompute, reported)):
         row, source = divmod(k, 2)
         name, colour, dash = ((RECOMPUTE_NAME, RECOMPUTE_COLOUR, "solid"), (REPORTED_NAME, REPORTED_COLOUR, "dot"))[source]
-        data.append(_line(tt, as_list(values), name, colour, dash=dash, width=1.6,
+        data.append(_line(tt, values, name, colour, dash=dash, width=1.6,
                           yaxis="y" if row == 0 else f"y{row + 1}", legend=row == 0))
     axes = _stacked_axes([f"x ({unit})", f"y ({unit})", "heading (deg)"], "time (s)")
     return {"data": data, "layout": _layout(
@@ -227,17 +241,24 @@ def pose_traces(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, unit
 
 
 def pose_extension(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, max_points: int) -> tuple[dict, list[int], int]:
-    ys = [as_list(y) for y in _pose_columns(recompute, reported)]
-    tl = as_list(t)
-    return {"x": [tl] * len(ys), "y": ys}, list(range(len(ys))), max_points
+    """extendData for ``pose_traces``. A wrap that falls between the last
+    point shown and the first of these is drawn as a line, not a gap."""
+    columns = _pose_columns(t, recompute, reported)
+    return {"x": [c[0] for c in columns], "y": [c[1] for c in columns]}, list(range(len(columns))), max_points
+
+
+def _heading_error_column(t: np.ndarray, heading_error_deg: np.ndarray, tl: list) -> tuple[list, list]:
+    tw, deg = break_at_wraps(t, heading_error_deg)
+    return (tl if tw is t else as_list(tw)), as_list(deg)
 
 
 def disagreement_traces(t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, unit: str) -> dict:
-    """Position error (``unit``) and heading error (degrees) against time t (s)."""
+    """Position error (``unit``) and heading error (degrees, a gap at each wrap) against time t (s)."""
     tt = as_list(t)
+    th, heading = _heading_error_column(t, heading_error_deg, tt)
     data = [
         _line(tt, as_list(position_error), "position error", DISAGREEMENT_COLOUR, width=1.8),
-        _line(tt, as_list(heading_error_deg), "heading error", DISAGREEMENT_COLOUR, width=1.8, dash="dot", yaxis="y2"),
+        _line(th, heading, "heading error", DISAGREEMENT_COLOUR, width=1.8, dash="dot", yaxis="y2"),
     ]
     axes = _stacked_axes([f"position ({unit})", "heading (deg)"], "time (s)", gap=0.08)
     axes["yaxis"]["rangemode"] = "tozero"
@@ -249,7 +270,8 @@ def disagreement_extension(
     t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, max_points: int
 ) -> tuple[dict, list[int], int]:
     tl = as_list(t)
-    return {"x": [tl, tl], "y": [as_list(position_error), as_list(heading_error_deg)]}, [0, 1], max_points
+    th, heading = _heading_error_column(t, heading_error_deg, tl)
+    return {"x": [tl, th], "y": [as_list(position_error), heading]}, [0, 1], max_points
 
 
 def loop_traces(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms: np.ndarray, threshold_ms: float) -> dict:

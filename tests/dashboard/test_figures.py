@@ -72,6 +72,26 @@ def test_pose_traces_overlay_both_sources_with_headings_in_wrapped_degrees():
     assert fig["layout"]["yaxis3"]["title"]["text"] == "heading (deg)"
 
 
+def test_a_heading_that_wraps_at_180_gets_a_gap_not_a_line_across_the_graph():
+    # A robot turning counter-clockwise through 180 deg: 170, 179, then -179, -170.
+    t = np.array([1.0, 2.0, 3.0, 4.0])
+    heading = np.radians([170.0, 179.0, 181.0, 190.0])
+    poses = np.column_stack([t, t, heading])
+    fig = figures.pose_traces(t, poses, poses, "in")
+    for trace in fig["data"][4:]:
+        assert trace["x"] == [1.0, 2.0, 2.5, 3.0, 4.0]
+        assert trace["y"][:2] == [170.0, 179.0] and trace["y"][2] is None and trace["y"][3:] == [-179.0, -170.0]
+    assert fig["data"][0]["x"] == [1.0, 2.0, 3.0, 4.0]  # x and y keep every point
+    update, _, _ = figures.pose_extension(t, poses, poses, 100)
+    assert update["x"][5] == [1.0, 2.0, 2.5, 3.0, 4.0] and update["y"][5][2] is None
+    # the heading error too; a step under 180 deg is drawn as it is
+    errors = figures.disagreement_traces(t, np.zeros(4), np.array([-175.0, 178.0, 100.0, -60.0]), "in")
+    assert errors["data"][1]["x"] == [1.0, 1.5, 2.0, 3.0, 4.0]
+    assert errors["data"][1]["y"] == [-175.0, None, 178.0, 100.0, -60.0]
+    update, _, _ = figures.disagreement_extension(t, np.zeros(4), np.array([10.0, 20.0, 30.0, 40.0]), 100)
+    assert update["x"] == [[1.0, 2.0, 3.0, 4.0]] * 2
+
+
 def test_wrapped_degrees_keeps_180_and_maps_minus_180_to_it():
     np.testing.assert_allclose(figures.wrapped_degrees(np.array([math.pi, -math.pi, 3 * math.pi / 2])), [180, 180, -90])
 
