@@ -143,6 +143,8 @@ class PoseUpdate(NamedTuple):
 
 # Listener(accepted samples with their source, latest pose per updated robot)
 Listener = Callable[[list[tuple[Sample, str]], dict[str, PoseUpdate]], None]
+# The same with each accepted sample's bytes as received (None where unknown), third.
+RawsListener = Callable[[list[tuple[Sample, str]], dict[str, PoseUpdate], list[bytes | None]], None]
 
 _RING_FIELDS = {
     "seq": (np.int64, None),
@@ -420,7 +422,7 @@ class Hub:
         self.errors: Counter = Counter()  # every refused message, by reason
         self.last_error: str | None = None
         self.sessions: dict[str, Session] = {}
-        self._listeners: list[tuple[Callable, bool]] = []
+        self._listeners: list[tuple[Listener | RawsListener, bool]] = []
         self._pending: list[tuple[list[Sample], list[Failure], float, str, list[bytes] | None]] = []
         self._pending_lock = threading.Lock()
         self._state_lock = threading.RLock()
@@ -435,7 +437,7 @@ class Hub:
     def _new_session(self, robot: str, profile: Profile | None) -> Session:
         return Session(robot, profile, self.window_s, self.max_rows, self.method)
 
-    def add_listener(self, listener: Listener, with_raws: bool = False) -> None:
+    def add_listener(self, listener: Listener | RawsListener, with_raws: bool = False) -> None:
         """Called after each ``process`` that accepted samples; it must be quick.
 
         ``with_raws``: called with a third list, each accepted sample's bytes
