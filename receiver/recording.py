@@ -4,8 +4,9 @@ Owns the recording contract of DESIGN.md: a header line with the profiles,
 then one wire message per line, as received, plus "rx". Also reads
 header-less files of bare messages. Bad lines are skipped and counted by
 reason, a truncated last line (the receiver was killed mid-write) is skipped
-with a warning; a file with nothing valid is refused with one line. The writer reads the clock only to
-date the header: the caller stamps "rx" and says when it is time to flush.
+with a warning; a file with nothing valid is refused with one line. The
+writer reads the clock only to date the header: the caller stamps "rx" and
+says when it is time to flush.
 """
 
 from __future__ import annotations
