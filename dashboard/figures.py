@@ -205,23 +205,33 @@ def wrapped_degrees(heading_rad: np.ndarray) -> np.ndarray:
     return 180.0 - np.mod(180.0 - deg, 360.0)
 
 
-def break_at_wraps(t: np.ndarray, deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def break_at_wraps(
+    t: np.ndarray, deg: np.ndarray, before: tuple[float, float] | None = None
+) -> tuple[np.ndarray, np.ndarray]:
     """``t`` and ``deg`` with a gap (NaN) between neighbours that a wrap at
     +-180 degrees puts more than 180 apart: the line would otherwise cross the
-    whole graph and read as a sudden swing of the robot's heading."""
+    whole graph and read as a sudden swing of the robot's heading. ``before``
+    is the (t, deg) the graph already ends with, for points appended to it."""
+    if before is not None and len(t):
+        tw, dw = break_at_wraps(np.concatenate([[before[0]], t]), np.concatenate([[before[1]], deg]))
+        return (t, deg) if len(tw) == len(t) + 1 else (tw[1:], dw[1:])
     jumps = np.flatnonzero(np.abs(np.diff(deg)) > 180.0) + 1
     if not len(jumps):
         return t, deg
     return np.insert(t, jumps, 0.5 * (t[jumps - 1] + t[jumps])), np.insert(deg, jumps, np.nan)
 
 
-def _pose_columns(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray) -> list[tuple[list, list]]:
+def _pose_columns(
+    t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, before: tuple[float, float, float] | None = None
+) -> list[tuple[list, list]]:
     """(t, values) of x, y and heading (deg) of recompute then reported, in
-    trace order; the headings with gaps at their wraps."""
+    trace order; the headings with gaps at their wraps. ``before``: the time
+    and the two headings (rad) the graph already ends with."""
     tl = as_list(t)
     columns = [(tl, as_list(v)) for v in (recompute[:, 0], reported[:, 0], recompute[:, 1], reported[:, 1])]
-    for heading in (recompute[:, 2], reported[:, 2]):
-        tw, deg = break_at_wraps(t, wrapped_degrees(heading))
+    for k, heading in enumerate((recompute[:, 2], reported[:, 2])):
+        last = None if before is None else (before[0], float(wrapped_degrees(before[1 + k])))
+        tw, deg = break_at_wraps(t, wrapped_degrees(heading), last)
         columns.append((tl if tw is t else as_list(tw), as_list(deg)))
     return columns
 
@@ -240,15 +250,19 @@ def pose_traces(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, unit
         **axes)}
 
 
-def pose_extension(t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, max_points: int) -> tuple[dict, list[int], int]:
-    """extendData for ``pose_traces``. A wrap that falls between the last
-    point shown and the first of these is drawn as a line, not a gap."""
-    columns = _pose_columns(t, recompute, reported)
+def pose_extension(
+    t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, max_points: int,
+    before: tuple[float, float, float] | None = None,
+) -> tuple[dict, list[int], int]:
+    """extendData for ``pose_traces``; ``before`` as in ``_pose_columns``."""
+    columns = _pose_columns(t, recompute, reported, before)
     return {"x": [c[0] for c in columns], "y": [c[1] for c in columns]}, list(range(len(columns))), max_points
 
 
-def _heading_error_column(t: np.ndarray, heading_error_deg: np.ndarray, tl: list) -> tuple[list, list]:
-    tw, deg = break_at_wraps(t, heading_error_deg)
+def _heading_error_column(
+    t: np.ndarray, heading_error_deg: np.ndarray, tl: list, before: tuple[float, float] | None = None
+) -> tuple[list, list]:
+    tw, deg = break_at_wraps(t, heading_error_deg, before)
     return (tl if tw is t else as_list(tw)), as_list(deg)
 
 
@@ -267,10 +281,13 @@ def disagreement_traces(t: np.ndarray, position_error: np.ndarray, heading_error
 
 
 def disagreement_extension(
-    t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, max_points: int
+    t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, max_points: int,
+    before: tuple[float, float] | None = None,
 ) -> tuple[dict, list[int], int]:
+    """extendData for ``disagreement_traces``; ``before``: the (t, heading error
+    in degrees) the graph already ends with."""
     tl = as_list(t)
-    th, heading = _heading_error_column(t, heading_error_deg, tl)
+    th, heading = _heading_error_column(t, heading_error_deg, tl, before)
     return {"x": [tl, th], "y": [as_list(position_error), heading]}, [0, 1], max_points
 
 

@@ -174,15 +174,20 @@ def _views(
                                      _last_finite(rows["reported"]))
         made["track"] = (figures.track_map(points, field_size, body, unit) if full
                          else figures.track_extension(points, body, max_points))
+    # The row before these, which the page's graphs end with: a heading that
+    # wraps between it and the first new row is broken there too.
+    last = new.start - 1 if not full and new.start > 0 else None
     if "poses" in names:
         poses = pick_rows(tn, [*pose.T, *rep.T], n_out)
+        before = None if last is None else (t[last], rows["pose"][last, 2], rows["reported"][last, 2])
         made["poses"] = (figures.pose_traces(tn[poses], pose[poses], rep[poses], unit) if full
-                         else figures.pose_extension(tn[poses], pose[poses], rep[poses], max_points))
+                         else figures.pose_extension(tn[poses], pose[poses], rep[poses], max_points, before))
     if "errors" in names:
         err, head = rows["position_error"][new], np.degrees(rows["heading_error"][new])
         errors = pick_rows(tn, [err, head], n_out)
+        before = None if last is None else (t[last], np.degrees(rows["heading_error"][last]))
         made["errors"] = (figures.disagreement_traces(tn[errors], err[errors], head[errors], unit) if full
-                          else figures.disagreement_extension(tn[errors], err[errors], head[errors], max_points))
+                          else figures.disagreement_extension(tn[errors], err[errors], head[errors], max_points, before))
     if "loop" in names:
         loop_ms = rows["loop"][new] * 1000.0
         threshold_ms = settings.loop_threshold_s * 1000.0

@@ -92,6 +92,20 @@ def test_a_heading_that_wraps_at_180_gets_a_gap_not_a_line_across_the_graph():
     assert update["x"] == [[1.0, 2.0, 3.0, 4.0]] * 2
 
 
+def test_appended_headings_break_at_a_wrap_between_the_graph_and_them():
+    # The graph ends at 0.5 s with 175 deg (recompute) and 0 deg (reported); the
+    # new rows start past the wrap for the recompute only.
+    t = np.array([1.0, 2.0])
+    poses = np.column_stack([t, t, np.radians([185.0, 190.0])])
+    update, _, _ = figures.pose_extension(t, poses, poses * [1, 1, 0], 100, before=(0.5, math.radians(175.0), 0.0))
+    assert update["x"][4] == [0.75, 1.0, 2.0] and update["y"][4] == [None, -175.0, -170.0]
+    assert update["x"][5] == [1.0, 2.0] and update["y"][5] == [0.0, 0.0]
+    update, _, _ = figures.disagreement_extension(t, np.zeros(2), np.array([-178.0, -170.0]), 100, before=(0.5, 179.0))
+    assert update["x"][1] == [0.75, 1.0, 2.0] and update["y"][1] == [None, -178.0, -170.0]
+    update, _, _ = figures.disagreement_extension(t, np.zeros(2), np.array([170.0, 160.0]), 100, before=(0.5, 179.0))
+    assert update["x"][1] == [1.0, 2.0]
+
+
 def test_wrapped_degrees_keeps_180_and_maps_minus_180_to_it():
     np.testing.assert_allclose(figures.wrapped_degrees(np.array([math.pi, -math.pi, 3 * math.pi / 2])), [180, 180, -90])
 
