@@ -195,6 +195,32 @@ def decode_keeping_raw(data: bytes) -> tuple[list[Sample], list[Failure], list[b
     return samples, failures, [bytes(raw) for raw in items]
 
 
+_AT_RX = "at `$.rx`"  # the end of msgspec's text for an error in a message's "rx"
+_ANY = msgspec.json.Decoder()
+
+
+def _without_robot_rx(data: bytes, error: BaseException | None = None) -> bytes | None:
+    """The message without the "rx" the robot sent, when that alone kept it
+    out (``error``'s text, if given, says where the decode failed); else None.
+
+    "rx" is the receiver's field, not the robot's: on the wire it is a field
+    the protocol does not know, so a robot's own "rx" of another type (a
+    string, say) must not cost the message. Re-encoded without it, the
+    message loses that key in the recording, which gets the receiver's "rx"
+    instead. Only on the path of a message that failed: no cost otherwise.
+    """
+    if error is not None and not str(error).endswith(_AT_RX):
+        return None
+    try:
+        message = _ANY.decode(data)
+    except (msgspec.MsgspecError, RecursionError):
+        return None
+    if not isinstance(message, dict) or "rx" not in message:
+        return None
+    del message["rx"]
+    return msgspec.json.encode(message)
+
+
 def _decode_items(
     data: bytes, first_error: msgspec.MsgspecError | RecursionError
 ) -> tuple[list[Sample], list[Failure], list[bytes]]:
@@ -202,6 +228,9 @@ def _decode_items(
     ones; the bytes of each good one come third."""
     stripped = data.lstrip()
     if not stripped.startswith(b"["):
+        without = _without_robot_rx(data, first_error)
+        if without is not None:
+            return decode_keeping_raw(without)
         return [], [_named(classify_error(first_error, data), data)], []
     try:
         items = _raw_items.decode(data)
@@ -226,6 +255,10 @@ def _decode_items(
     for item in items:
         raw = bytes(item)
         result = decode_message(raw)
+        if isinstance(result, Failure) and result.detail.endswith(_AT_RX):
+            without = _without_robot_rx(raw)
+            if without is not None:
+                raw, result = without, decode_message(without)
         if isinstance(result, Sample):
             samples.append(result)
             raws.append(raw)

@@ -144,3 +144,24 @@ def test_keeping_raw_stays_aligned_with_bad_elements_among_good_ones(bad):
     assert raws == good
     assert [decode_message(r) for r in raws] == samples
 
+
+
+def test_a_robots_own_rx_of_another_type_does_not_cost_the_message():
+    # "rx" is the receiver's field (recordings); on the wire it is one the
+    # protocol does not know, and those are ignored (DESIGN.md, wire table).
+    alone = raw(rx="wifi", motor_power=0.5)
+    samples, failures, raws = decode_keeping_raw(alone)
+    assert failures == [] and samples[0].seq == 7 and samples[0].rx is None
+    assert json.loads(raws[0]) == message(motor_power=0.5)  # kept, but for the robot's rx
+    batch = b"[" + raw(seq=1) + b"," + raw(seq=2, rx=[1, 2]) + b"," + raw(seq=3) + b"]"
+    samples, failures, raws = decode_keeping_raw(batch)
+    assert failures == [] and [s.seq for s in samples] == [1, 2, 3]
+    assert [json.loads(r).get("rx") for r in raws] == [None, None, None]
+    # the message's real faults still count, whatever its rx
+    samples, failures, _ = decode_keeping_raw(raw(rx="wifi", seq="seven"))
+    assert samples == [] and [f.reason for f in failures] == [Reason.WRONG_TYPE] and "seq" in failures[0].detail
+
+
+def test_a_recording_line_with_an_rx_of_another_type_is_still_refused():
+    # In a recording "rx" is the receiver's own clock: a line where it is not a number is damaged.
+    assert isinstance(decode_message(raw(rx="wifi")), Failure)
