@@ -81,12 +81,12 @@ class _Sender(msgspec.Struct):
 
 _sender = msgspec.json.Decoder(_Sender)
 _NON_FINITE_TOKEN = re.compile(rb"(?<![\w\"])-?(?:NaN|Infinity|inf|nan)(?![\w\"])")
-# The same tokens where a JSON value starts (after ":", "[" or ","). A robot
-# name cannot hold those characters, so rewriting them to an out-of-range
-# number never changes a valid message; it only lets a batch with one NaN be
-# split into elements, each then refused as non-finite on its own.
-_NON_FINITE_VALUE = re.compile(rb"(?<=[:\[,])(\s*)-?(?:NaN|Infinity|inf|nan)(?![\w\"])")
-_OUT_OF_RANGE_NUMBER = rb"\g<1>1e999"
+# The same tokens where a JSON value starts (after ":", "[" or ","), or in a
+# string that looks so: rewritten to an out-of-range number they let a batch
+# with one NaN split into elements, which are then cut from the bytes as sent
+# (_split_with_non_finite).
+_NON_FINITE_VALUE = re.compile(rb"(?<=[:\[,])\s*-?(?:NaN|Infinity|inf|nan)(?![\w\"])")
+_OUT_OF_RANGE_NUMBER = b"1e999"
 
 
 def classify_error(exc: msgspec.MsgspecError | RecursionError, data: bytes) -> Failure:
@@ -221,6 +221,40 @@ def _without_robot_rx(data: bytes, error: BaseException | None = None) -> bytes 
     return msgspec.json.encode(message)
 
 
+def _split_with_non_finite(data: bytes) -> list[bytes] | None:
+    """The elements of a batch that is not JSON only for a NaN or Infinity
+    somewhere, each as it was sent; None when that does not make it JSON.
+
+    The tokens are rewritten to an out-of-range number so that the array
+    splits, and each element is then cut from the original bytes: an element
+    that held such a token is refused on its own, as it would be alone, and
+    a string that merely looks like one (",NaN" in a note) is kept as it was.
+    """
+    pieces, edits, last, length = [], [], 0, 0  # edits: (where in the rewrite one ends, bytes it added)
+    for match in _NON_FINITE_VALUE.finditer(data):
+        pieces += [data[last : match.start()], _OUT_OF_RANGE_NUMBER]
+        length += match.start() - last + len(_OUT_OF_RANGE_NUMBER)
+        edits.append((length, len(_OUT_OF_RANGE_NUMBER) - (match.end() - match.start())))
+        last = match.end()
+    if not edits:
+        return None
+    repaired = b"".join(pieces) + data[last:]
+    try:
+        items = [bytes(item) for item in _raw_items.decode(repaired)]
+    except (msgspec.MsgspecError, RecursionError):
+        return None
+
+    def original(at: int) -> int:  # a position in the rewrite, outside any rewritten token
+        return at - sum(added for end, added in edits if end <= at)
+
+    out, at = [], 0
+    for item in items:
+        start = repaired.find(item, at)
+        at = start + len(item)
+        out.append(data[original(start) : original(at)])
+    return out
+
+
 def _decode_items(
     data: bytes, first_error: msgspec.MsgspecError | RecursionError
 ) -> tuple[list[Sample], list[Failure], list[bytes]]:
@@ -233,14 +267,10 @@ def _decode_items(
             return decode_keeping_raw(without)
         return [], [_named(classify_error(first_error, data), data)], []
     try:
-        items = _raw_items.decode(data)
+        items = [bytes(item) for item in _raw_items.decode(data)]
     except msgspec.DecodeError as exc:
-        repaired = _NON_FINITE_VALUE.sub(_OUT_OF_RANGE_NUMBER, data)
-        if repaired == data:
-            return [], [classify_error(exc, data)], []
-        try:
-            items = _raw_items.decode(repaired)
-        except (msgspec.MsgspecError, RecursionError):
+        items = _split_with_non_finite(data)
+        if items is None:
             return [], [classify_error(exc, data)], []
     except (msgspec.MsgspecError, RecursionError) as exc:
         return [], [classify_error(exc, data)], []
@@ -248,12 +278,8 @@ def _decode_items(
         return [], [Failure(Reason.TOO_LARGE, f"batch of {len(items)} messages, limit {MAX_BATCH}")], []
     samples: list[Sample] = []
     failures: list[Failure] = []
-    # After a rewrite these are the rewritten bytes: a good element differs
-    # from what was sent only where a NaN or Infinity stood as a value (of a
-    # field the protocol does not know, or inside a string), and reads back.
     raws: list[bytes] = []
-    for item in items:
-        raw = bytes(item)
+    for raw in items:
         result = decode_message(raw)
         if isinstance(result, Failure) and result.detail.endswith(_AT_RX):
             without = _without_robot_rx(raw)

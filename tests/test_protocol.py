@@ -79,9 +79,19 @@ def test_a_batch_with_a_nan_element_keeps_the_others():
     good = json.dumps(message(seq=1))
     bad = json.dumps(message(seq=2, t=123456.5)).replace("123456.5", "NaN")
     also_good = json.dumps(message(seq=3, note="a:NaN, [Infinity"))
-    samples, failures = decode(f"[{good}, {bad},{also_good}]".encode())
+    samples, failures, raws = decode_keeping_raw(f"[{good}, {bad},{also_good}]".encode())
     assert [s.seq for s in samples] == [1, 3]
     assert [f.reason for f in failures] == [Reason.NON_FINITE]
+    assert raws == [good.encode(), also_good.encode()]  # as sent: the note keeps its "NaN"
+
+
+def test_a_nan_in_a_field_the_protocol_does_not_know_costs_the_message_alone_or_in_a_batch():
+    # NaN is not JSON wherever it stands; the other elements of the batch stay.
+    bad = json.dumps(message(seq=2, note=123456.5)).replace("123456.5", " NaN")
+    assert decode(bad.encode())[0] == []
+    samples, failures, raws = decode_keeping_raw(f"[{raw(seq=1).decode()},{bad} ,{raw(seq=3).decode()}]".encode())
+    assert [s.seq for s in samples] == [1, 3] and [f.reason for f in failures] == [Reason.NON_FINITE]
+    assert raws == [raw(seq=1), raw(seq=3)]
 
 
 def test_failures_name_the_robot_when_the_message_does():
