@@ -221,6 +221,15 @@ def break_at_wraps(
     return np.insert(t, jumps, 0.5 * (t[jumps - 1] + t[jumps])), np.insert(deg, jumps, np.nan)
 
 
+def _degrees_column(
+    t: np.ndarray, deg: np.ndarray, tl: list, before: tuple[float, float] | None = None
+) -> tuple[list, list]:
+    """(t, degrees) of one trace with gaps at its wraps; ``tl`` is ``t`` as
+    sent, shared with the traces that need no gap."""
+    tw, dw = break_at_wraps(t, deg, before)
+    return (tl if tw is t else as_list(tw)), as_list(dw)
+
+
 def _pose_columns(
     t: np.ndarray, recompute: np.ndarray, reported: np.ndarray, before: tuple[float, float, float] | None = None
 ) -> list[tuple[list, list]]:
@@ -231,8 +240,7 @@ def _pose_columns(
     columns = [(tl, as_list(v)) for v in (recompute[:, 0], reported[:, 0], recompute[:, 1], reported[:, 1])]
     for k, heading in enumerate((recompute[:, 2], reported[:, 2])):
         last = None if before is None else (before[0], float(wrapped_degrees(before[1 + k])))
-        tw, deg = break_at_wraps(t, wrapped_degrees(heading), last)
-        columns.append((tl if tw is t else as_list(tw), as_list(deg)))
+        columns.append(_degrees_column(t, wrapped_degrees(heading), tl, last))
     return columns
 
 
@@ -259,17 +267,10 @@ def pose_extension(
     return {"x": [c[0] for c in columns], "y": [c[1] for c in columns]}, list(range(len(columns))), max_points
 
 
-def _heading_error_column(
-    t: np.ndarray, heading_error_deg: np.ndarray, tl: list, before: tuple[float, float] | None = None
-) -> tuple[list, list]:
-    tw, deg = break_at_wraps(t, heading_error_deg, before)
-    return (tl if tw is t else as_list(tw)), as_list(deg)
-
-
 def disagreement_traces(t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, unit: str) -> dict:
     """Position error (``unit``) and heading error (degrees, a gap at each wrap) against time t (s)."""
     tt = as_list(t)
-    th, heading = _heading_error_column(t, heading_error_deg, tt)
+    th, heading = _degrees_column(t, heading_error_deg, tt)
     data = [
         _line(tt, as_list(position_error), "position error", DISAGREEMENT_COLOUR, width=1.8),
         _line(th, heading, "heading error", DISAGREEMENT_COLOUR, width=1.8, dash="dot", yaxis="y2"),
@@ -287,7 +288,7 @@ def disagreement_extension(
     """extendData for ``disagreement_traces``; ``before``: the (t, heading error
     in degrees) the graph already ends with."""
     tl = as_list(t)
-    th, heading = _heading_error_column(t, heading_error_deg, tl, before)
+    th, heading = _degrees_column(t, heading_error_deg, tl, before)
     return {"x": [tl, th], "y": [as_list(position_error), heading]}, [0, 1], max_points
 
 

@@ -199,9 +199,9 @@ _AT_RX = "at `$.rx`"  # the end of msgspec's text for an error in a message's "r
 _ANY = msgspec.json.Decoder()
 
 
-def _without_robot_rx(data: bytes, error: BaseException | None = None) -> bytes | None:
-    """The message without the "rx" the robot sent, when that alone kept it
-    out (``error``'s text, if given, says where the decode failed); else None.
+def _without_robot_rx(data: bytes, failed: str) -> bytes | None:
+    """The message without the "rx" the robot sent, when that kept it out
+    (``failed``, the decoder's text, says where the decode failed); else None.
 
     "rx" is the receiver's field, not the robot's: on the wire it is a field
     the protocol does not know, so a robot's own "rx" of another type (a
@@ -209,7 +209,7 @@ def _without_robot_rx(data: bytes, error: BaseException | None = None) -> bytes 
     message loses that key in the recording, which gets the receiver's "rx"
     instead. Only on the path of a message that failed: no cost otherwise.
     """
-    if error is not None and not str(error).endswith(_AT_RX):
+    if not failed.endswith(_AT_RX):
         return None
     try:
         message = _ANY.decode(data)
@@ -262,7 +262,7 @@ def _decode_items(
     ones; the bytes of each good one come third."""
     stripped = data.lstrip()
     if not stripped.startswith(b"["):
-        without = _without_robot_rx(data, first_error)
+        without = _without_robot_rx(data, str(first_error))
         if without is not None:
             return decode_keeping_raw(without)
         return [], [_named(classify_error(first_error, data), data)], []
@@ -281,8 +281,8 @@ def _decode_items(
     raws: list[bytes] = []
     for raw in items:
         result = decode_message(raw)
-        if isinstance(result, Failure) and result.detail.endswith(_AT_RX):
-            without = _without_robot_rx(raw)
+        if isinstance(result, Failure):
+            without = _without_robot_rx(raw, result.detail)
             if without is not None:
                 raw, result = without, decode_message(without)
         if isinstance(result, Sample):
