@@ -15,7 +15,7 @@ from enum import Enum
 
 import numpy as np
 
-from receiver.profile import METRES_PER_UNIT
+from receiver.odometry.robot import METRES_PER_UNIT
 
 # Back under this share of both thresholds, the next crossing asks again:
 # half, so that an error hovering at a threshold does not ask at every tick.

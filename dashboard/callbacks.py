@@ -9,9 +9,10 @@ from __future__ import annotations
 
 import math
 
-from dash import Dash, Input, Output, State, ctx, no_update
+from dash import Dash, Input, Output, State, no_update
 
-from dashboard import ids, layout, view
+from dashboard import ids, readout_texts, view
+from dashboard.pacing import PAINT_AND_ASK_NEXT, WATCHDOG, triggered_ids
 from dashboard.settings import Settings
 from dashboard.sources import Station
 from receiver.errors import PodwatchError
@@ -21,90 +22,10 @@ DISAGREEMENT_IDS = (ids.POSITION_NOW, ids.POSITION_WORST, ids.POSITION_GROWTH, i
                     ids.HEADING_GROWTH)
 LOOP_IDS = (ids.LOOP_RATE, ids.LOOP_MEAN, ids.LOOP_P95, ids.LOOP_MAX, ids.LOOP_LONG, ids.JITTER)
 READOUT_IDS = DISAGREEMENT_IDS + LOOP_IDS
-
-
-# A tick asks for an update only once the previous one has been answered, so
-# that a slow browser or server never piles up requests (Dash drops the answer
-# to a request that a newer one overtook, and the page would stand still).
-# After STALL_TICKS unanswered ticks it asks again anyway. The diagnosis and
-# guided-check panels tick through this gate.
-STALL_TICKS = 25
-GATE = f"""
-function(n, cursor, request) {{
-    if (!request || (cursor && cursor.tick === request.tick) || n - request.tick > {STALL_TICKS}) {{
-        return {{tick: n || 0, at: Date.now()}};
-    }}
-    return window.dash_clientside.no_update;
-}}
-"""
-# The views are paced by their answers instead (NEXT): each answer asks for
-# the next update at once, though no sooner than MIN_GAP_MS after the
-# previous request, without a tick in between (a tick and its gate cost the
-# page a callback run's bookkeeping per update). Their interval is a
-# watchdog: it asks when nothing is on its way, on the page's start, on
-# Follow after Pause page, and STALL_MS after a request whose answer never
-# came. The replay bar asks for its position with every request, while the
-# bar is shown (no request per tick when live).
-MIN_GAP_MS = 100
-RESUME_MS = 1000  # more than MIN_GAP_MS: an answered request this old has no next one coming
-STALL_MS = 10_000
-_ASK = """
-    const ask = {tick: (request ? request.tick : 0) + 1, at: Date.now()};
-    const replaying = !(barClass || "").includes("hidden");
-"""
-WATCHDOG = f"""
-function(n, cursor, request, barClass) {{
-    const age = request ? Date.now() - (request.at || 0) : Infinity;
-    const answered = !request || (cursor && cursor.tick === request.tick);
-    if (!(answered ? age > {RESUME_MS} : age > {STALL_MS})) {{
-        return [window.dash_clientside.no_update, window.dash_clientside.no_update];
-    }}
-    {_ASK.strip()}
-    return [ask, replaying ? ask : window.dash_clientside.no_update];
-}}
-"""
-# Each answer also paints texts (cursor["paint"]: readouts, status line, link
-# table) straight into their elements, which hold no children for React: sent
-# as components' children, every text cost the page a round of Dash's
-# bookkeeping (which runs over every component on the page), and every cell of
-# a rebuilt link table one more. Every answer carries every readout (a few
-# hundred bytes), not only those that changed: Dash may run this function once
-# for two answers that came close together, and the first one's texts would
-# be lost for as long as they did not change. The page skips unchanged texts.
-NEXT = f"""
-function(cursor, request, paused, barClass) {{
-    const paint = (cursor && cursor.paint) || {{}};
-    for (const [id, text] of Object.entries(paint.text || {{}})) {{
-        const element = document.getElementById(id);
-        if (element && element.textContent !== text) {{ element.textContent = text; }}
-    }}
-    for (const [id, markup] of Object.entries(paint.html || {{}})) {{
-        const element = document.getElementById(id);
-        if (element) {{ element.innerHTML = markup; }}
-    }}
-    if (paused || !cursor || !request || cursor.tick !== request.tick) {{ return; }}
-    const next = () => {{
-        {_ASK.strip()}
-        window.dash_clientside.set_props("{ids.REQUEST}", {{data: ask}});
-        if (replaying) {{ window.dash_clientside.set_props("{ids.REPLAY_REQUEST}", {{data: ask}}); }}
-    }};
-    const wait = {MIN_GAP_MS} - (Date.now() - (request.at || 0));
-    if (wait > 0) {{ setTimeout(next, wait); }} else {{ next(); }}
-}}
-"""
 # The link table and the status line change with every message counted;
 # painting them once a second is live enough (and heals a lost paint within
 # a second).
 SLOW_TEXTS_S = 1.0
-
-
-def triggered_ids() -> list[str]:
-    """The ids of every input that triggered the running callback, first seen first.
-
-    Dash merges the triggers of calls of one callback that wait in the page
-    at once into one call; each of them must count.
-    """
-    return list(dict.fromkeys(ctx.triggered_prop_ids.values()))
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
@@ -114,9 +35,9 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         State(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.REPLAY_BAR, "className"),
     )
     # Not outputs but set_props: Dash drops a callback that its own outputs
-    # triggered again through a chain (NEXT -> request -> update -> cursor -> NEXT).
+    # triggered again through a chain (PAINT_AND_ASK_NEXT -> request -> update -> cursor -> PAINT_AND_ASK_NEXT).
     app.clientside_callback(
-        NEXT, Input(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.TICK, "disabled"),
+        PAINT_AND_ASK_NEXT, Input(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.TICK, "disabled"),
         State(ids.REPLAY_BAR, "className"),
     )
 
@@ -139,13 +60,13 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         views = [v for name, _ in VIEWS for v in (r.figures.get(name, no_update), r.extensions.get(name, no_update))]
         snap = r.snapshots.get(robot)
         jitter_s = snap.jitter_s if snap is not None else float("nan")
-        texts = layout.disagreement_values(r.disagreement, r.unit) + layout.loop_values(r.loop, jitter_s)
+        texts = readout_texts.disagreement_values(r.disagreement, r.unit) + readout_texts.loop_values(r.loop, jitter_s)
         paint = {"text": dict(zip(READOUT_IDS, texts)), "html": {}}
         slow_at = (cursor or {}).get("slow_at", -math.inf)
         if r.figures or not 0.0 <= r.now - slow_at < SLOW_TEXTS_S:
             r.cursor["slow_at"] = r.now
             paint["text"][ids.STATUS] = r.status
-            paint["html"][ids.LINK_TABLE] = layout.link_table(r.snapshots, r.now, robot, r.unattributed)
+            paint["html"][ids.LINK_TABLE] = readout_texts.link_table(r.snapshots, r.now, robot, r.unattributed)
         else:
             r.cursor["slow_at"] = slow_at
         r.cursor["paint"] = paint

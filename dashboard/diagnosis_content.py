@@ -13,10 +13,17 @@ import math
 
 from dash import html
 
-from receiver.check_words import CHECK_MARK, change_lines, clip_line, confidence_words, explanation_id, guided_outcome
-from receiver.diagnose import Diagnosis
-from receiver.guided import INSTRUCTIONS, MOVES, GuidedResult
-from receiver.mistakes import profile_changes, verdict
+from receiver.analysis.diagnose import Diagnosis
+from receiver.analysis.guided_check import INSTRUCTIONS, MOVES, GuidedResult
+from receiver.analysis.mistakes import profile_changes, verdict
+from receiver.analysis.wording import (
+    CHECK_MARK,
+    change_lines,
+    clip_line,
+    confidence_words,
+    explanation_id,
+    guided_outcome,
+)
 
 PAGE_HYPOTHESES = 4  # the panel's table: the leader and the few it was measured against
 STEP_TITLES = {"forward": "Push forward", "left": "Push left", "turn": "Turn counter-clockwise"}

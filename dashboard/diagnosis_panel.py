@@ -17,13 +17,14 @@ from dash import Dash, Input, Output, State, ctx, dcc, html, no_update
 from dashboard import ids
 from dashboard.autodiagnose import REARM_SHARE, Thresholds, Watch, WatchState, level, step
 from dashboard.diagnosis_content import diagnosis_message, diagnosis_view, guided_intro, guided_view
+from dashboard.pacing import ASK_WHEN_ANSWERED, triggered_ids
 from dashboard.settings import Settings
 from dashboard.sources import Station
-from receiver.clip import clip_from_columns
-from receiver.diagnose import diagnose_recent, equivalence_classes
+from receiver.analysis.diagnose import diagnose_recent, equivalence_classes
+from receiver.analysis.guided_check import guided_check
+from receiver.analysis.sample_clip import clip_from_columns
 from receiver.errors import PodwatchError
-from receiver.guided import guided_check
-from receiver.raw_history import DEFAULT_RAW_WINDOW_S
+from receiver.live.raw_history import DEFAULT_RAW_WINDOW_S
 
 CLIP_CHOICES_S = (5, 10, 20, 30, 60)
 TICK_MS = 500  # how often the watch looks at the disagreement, and a running guided check at the moves
@@ -153,16 +154,13 @@ def warm_up(station: Station) -> None:
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
-    # Not at the top: callbacks imports layout, which imports this module.
-    from dashboard.callbacks import GATE, triggered_ids
-
     warm_up(station)
-    # Both ticking callbacks go through the views' gate (callbacks.GATE): a
+    # Both ticking callbacks go through the views' gate (pacing.ASK_WHEN_ANSWERED): a
     # tick asks only once the previous answer is in, else on a busy machine
     # each answer would be voided by the next tick's request and never shown.
     for tick, cursor, request in ((ids.DIAGNOSE_TICK, ids.DIAGNOSE_WATCH, ids.DIAGNOSE_REQUEST),
                                   (ids.GUIDED_TICK, ids.GUIDED_CURSOR, ids.GUIDED_REQUEST)):
-        app.clientside_callback(GATE, Output(request, "data"), Input(tick, "n_intervals"), State(cursor, "data"),
+        app.clientside_callback(ASK_WHEN_ANSWERED, Output(request, "data"), Input(tick, "n_intervals"), State(cursor, "data"),
                                 State(request, "data"))
 
     # The watch's store is also its gate's cursor (the tick it answers) and
@@ -194,7 +192,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         prevent_initial_call=True,
     )
     def diagnose_now(_clicks, ask, robot, seconds):
-        # A press merged with an ask into one call (callbacks.triggered_ids) is the person's run.
+        # A press merged with an ask into one call (pacing.triggered_ids) is the person's run.
         asked = ids.DIAGNOSE_RUN not in triggered_ids()
         robot = ask["robot"] if asked else robot
         how, reason = ("ran by itself", f"the disagreement passed {_limits_text(settings)}") if asked else ("ran on request", "")

@@ -15,7 +15,8 @@ import sys
 from xml.sax.saxutils import escape
 
 from receiver.errors import PodwatchError
-from receiver.profile import Profile, load_profile
+from receiver.formats.profile_toml import load_profile
+from receiver.odometry.robot import Profile
 
 SIZE = 480  # px, square
 INK = "#1b1b1b"

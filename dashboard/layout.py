@@ -2,7 +2,7 @@
 
 Owns the component tree and what the callbacks fill in: the readout texts
 and the link-health table as one piece of HTML. Those are painted into
-their elements by the page's own script (callbacks.NEXT), not by Dash: a
+their elements by the page's own script (pacing.PAINT_AND_ASK_NEXT), not by Dash: a
 text or a table sent as a component's children cost the page a round of
 Dash's bookkeeping per readout, and one per table cell, at every refresh.
 Static: it reads no data.
@@ -10,15 +10,11 @@ Static: it reads no data.
 
 from __future__ import annotations
 
-import math
-from html import escape
-
 from dash import dcc, html
 
-from dashboard import diagnosis_panel, figures, ids, readouts
+from dashboard import diagnosis_panel, figures, ids
 from dashboard.settings import WINDOWS_S, Settings
 from dashboard.sources import REPLAY_SPEEDS
-from receiver.session import LinkState, RobotSnapshot
 
 _GRAPH_CONFIG = {"displaylogo": False, "responsive": True}
 
@@ -141,55 +137,3 @@ def build(settings: Settings, replay_mode: bool) -> html.Div:
             dcc.Store(id=ids.REPLAY_REQUEST, data=None),
         ],
     )
-
-
-def disagreement_values(d: readouts.Disagreement | None, unit: str) -> list[str]:
-    """Texts for POSITION_NOW ... HEADING_GROWTH, in that order."""
-    if d is None:
-        d = readouts.Disagreement(*([math.nan] * 6), 0.0, 0.0)
-    q = readouts.quote
-    return [
-        q(d.position_now, unit), q(d.position_worst, unit), q(d.position_per_m, f"{unit}/m"),
-        q(d.heading_now_deg, "deg", 1), q(d.heading_worst_deg, "deg", 1), q(d.heading_per_turn_deg, "deg/turn", 1),
-    ]
-
-
-def loop_values(loop: readouts.LoopTiming, jitter_s: float) -> list[str]:
-    """Texts for LOOP_RATE ... JITTER, in that order."""
-    q = readouts.quote
-    return [
-        q(loop.rate_hz, "Hz", 1), q(loop.mean_s * 1000, "ms", 1), q(loop.p95_s * 1000, "ms", 1),
-        q(loop.max_s * 1000, "ms", 1), f"{loop.long} loop{'' if loop.long == 1 else 's'}",
-        q(jitter_s * 1000, "ms", 2),
-    ]
-
-
-_STATE_CLASS = {LinkState.LIVE: "live", LinkState.QUIET: "quiet", LinkState.WAITING: "waiting"}
-LINK_HEAD = ("robot", "link", "messages", "rate", "gaps", "duplicates", "out of order", "decode errors")
-
-
-def _cell(tag: str, text: str, css_class: str = "") -> str:
-    attribute = f' class="{css_class}"' if css_class else ""
-    return f"<{tag}{attribute}>{escape(text)}</{tag}>"
-
-
-def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> str:
-    """The link-health table as HTML (every text escaped), one row per robot."""
-    rows = []
-    for robot, s in sorted(snapshots.items()):
-        if s.state is LinkState.QUIET:
-            state = f"no data for {max(now - s.last_rx, 0.0):.0f} s"
-        else:
-            state = s.state.value
-        errors = ", ".join(f"{reason} {n}" for reason, n in sorted(s.errors.items())) or "none"
-        cells = [_cell("td", robot), _cell("td", state, f"state {_STATE_CLASS[s.state]}")] + [
-            _cell("td", text) for text in (f"{s.messages}", f"{s.rate_hz:.0f} msg/s", f"{s.gaps}", f"{s.duplicates}",
-                                           f"{s.late}", errors)]
-        row_class = ' class="selected"' if robot == selected else ""
-        rows.append(f"<tr{row_class}>{''.join(cells)}</tr>")
-    caption = ""
-    if unattributed:
-        text = ", ".join(f"{reason} {n}" for reason, n in sorted(unattributed.items()))
-        caption = f"<caption>{escape(f'refused before a robot could be named: {text}')}</caption>"
-    head = "".join(_cell("th", h) for h in LINK_HEAD)
-    return f'<table class="link-table"><thead><tr>{head}</tr></thead><tbody>{"".join(rows)}</tbody>{caption}</table>'

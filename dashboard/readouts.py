@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from receiver.counts import ANCHORS
+from receiver.odometry.counts import ANCHORS
 
 # Below these, a growth rate is mostly noise and is not shown.
 MIN_TRAVEL_M = 0.25

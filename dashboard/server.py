@@ -10,7 +10,6 @@ from __future__ import annotations
 import ipaddress
 import logging
 import threading
-
 from typing import Callable
 
 from waitress import wasyncore
@@ -20,7 +19,7 @@ from dashboard.app import create_app
 from dashboard.settings import DEFAULT_HOST, DEFAULT_PORT, Settings
 from dashboard.sources import Station
 from receiver.errors import UsageError
-from receiver.live import parse_host_port
+from receiver.live.serve import parse_host_port
 
 log = logging.getLogger("podwatch.dashboard")
 THREADS = 4  # a page polls with a few callbacks at once; more threads only add contention

@@ -11,7 +11,7 @@ import re
 from dataclasses import dataclass
 
 from receiver.errors import UsageError
-from receiver.profile import METRES_PER_UNIT
+from receiver.odometry.robot import METRES_PER_UNIT
 
 FIELD_SIZE = "144in"  # common practice: a competition field is 12 ft square
 FOOTPRINT = "18in"  # common practice: robots are limited to an 18 in cube at the start
@@ -36,7 +36,7 @@ class Settings:
     footprint_m: float = parse_length(FOOTPRINT)
     loop_threshold_s: float = LOOP_THRESHOLD_MS / 1000.0
     window_s: float = 60.0
-    # The page asks for new points as soon as the last are answered (callbacks.NEXT);
+    # The page asks for new points as soon as the last are answered (pacing.PAINT_AND_ASK_NEXT);
     # its interval is a watchdog that only starts it, resumes it and asks again
     # after a lost request. Ticks cost the page its callback bookkeeping even
     # when they ask for nothing (at 500 ms rather than 200 ms: 10-30 % less

@@ -15,11 +15,11 @@ from typing import Callable
 import numpy as np
 
 from receiver.errors import UsageError
-from receiver.profile import Profile
-from receiver.raw_history import RawHistory
-from receiver.recording import RecordingData, read_recording
-from receiver.replay import FAST_CHUNK, SOURCE, recorded_samples
-from receiver.session import Hub
+from receiver.formats.recording import RecordingData, read_recording
+from receiver.live.hub import Hub
+from receiver.live.raw_history import RawHistory
+from receiver.live.replay import FAST_CHUNK, SOURCE, recorded_samples
+from receiver.odometry.robot import Profile
 
 REPLAY_STEP_S = 0.02  # how often a playing replay feeds the hub (wall clock)
 REPLAY_SPEEDS = (0.25, 0.5, 1.0, 2.0, 5.0, 10.0)

@@ -21,9 +21,9 @@ from dashboard import figures, readouts
 from dashboard.downsample import pick_rows
 from dashboard.settings import Settings
 from dashboard.sources import Station
-from receiver.counts import ANCHORS
-from receiver.profile import METRES_PER_UNIT
-from receiver.session import LinkState, RobotSnapshot
+from receiver.live.session import LinkState, RobotSnapshot
+from receiver.odometry.counts import ANCHORS
+from receiver.odometry.robot import METRES_PER_UNIT
 
 NO_PROFILE_UNIT = "robot units"
 _ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])

@@ -9,9 +9,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from receiver.profile import load_profile
-from receiver.recording import RecordingWriter
-from receiver.simulate import parse_faults, simulate
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.recording_writer import RecordingWriter
+from receiver.odometry.faults import parse_faults
+from receiver.sim.simulate import simulate
 
 HERE = Path(__file__).resolve().parent
 CREATED = "2025-01-01T12:00:00+00:00"

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from receiver.profile import load_profile
+from receiver.formats.profile_toml import load_profile
 
 FIXTURES = Path(__file__).resolve().parent.parent / "replay_fixtures"
 

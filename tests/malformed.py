@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import json
 
-from receiver.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, Reason
+from receiver.formats.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, Reason
 
 GOOD = {"v": 1, "robot": "practice-bot", "seq": 7, "t": 1.25, "ticks": [10, -20, 30], "pose": [1.0, 2.0, 0.5]}
 

@@ -13,10 +13,11 @@ from pathlib import Path
 
 import numpy as np
 
-from receiver.conventions import rep103_to_reported
-from receiver.integrate import integrate
-from receiver.kinematics import Kinematics
-from receiver.profile import Profile, profile_to_table
+from receiver.formats.profile_toml import profile_to_table
+from receiver.odometry.conventions import rep103_to_reported
+from receiver.odometry.integrate import integrate
+from receiver.odometry.kinematics import Kinematics
+from receiver.odometry.robot import Profile
 
 
 def constant_twist_messages(

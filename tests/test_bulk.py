@@ -7,9 +7,9 @@ import platform
 import numpy as np
 import pytest
 
-from receiver import bulk, recording
 from receiver.errors import RecordingError
-from receiver.recording import read_recording
+from receiver.formats import block_decoder, recording
+from receiver.formats.recording import read_recording
 from tests.synthetic import constant_twist_messages, write_recording
 
 
@@ -30,7 +30,7 @@ def test_parallel_equals_sequential(tmp_path, monkeypatch, practice_profile, met
     path = _messy_recording(tmp_path, practice_profile, metric_profile)
     monkeypatch.setattr(recording, "_CHUNK_BYTES", 20_000)  # many blocks
     sequential = read_recording(path)
-    monkeypatch.setattr(bulk, "PARALLEL_FROM_BYTES", 0)
+    monkeypatch.setattr(block_decoder, "PARALLEL_FROM_BYTES", 0)
     parallel = read_recording(path)
     assert sequential.skipped == parallel.skipped
     assert sum(sequential.skipped.values()) == 3
@@ -50,7 +50,7 @@ def test_recompute_on_workers_writes_the_same_csv(tmp_path, monkeypatch, capsys,
     path = _messy_recording(tmp_path, practice_profile, metric_profile)
     monkeypatch.setattr(recording, "_CHUNK_BYTES", 20_000)
     assert main(["recompute", str(path), "--out", str(tmp_path / "one.csv")]) == 0
-    monkeypatch.setattr(bulk, "PARALLEL_FROM_BYTES", 0)
+    monkeypatch.setattr(block_decoder, "PARALLEL_FROM_BYTES", 0)
     assert main(["recompute", str(path), "--out", str(tmp_path / "two.csv")]) == 0
     one, two = ((tmp_path / name).read_bytes().splitlines() for name in ("one.csv", "two.csv"))
     assert len(one) == len(two) == 1 + 2 * 1001
@@ -94,8 +94,8 @@ def test_workers_reading_byte_ranges_find_what_one_process_finds(tmp_path, monke
     path.write_bytes(EDGE_CASES[case](good, header))
     monkeypatch.setattr(recording, "_CHUNK_BYTES", 1000)  # block boundaries inside the lines
     sequential = _outcome(path)
-    monkeypatch.setattr(bulk, "PARALLEL_FROM_BYTES", 0)
-    with bulk.worker_pool(str(path)) as pool:
+    monkeypatch.setattr(block_decoder, "PARALLEL_FROM_BYTES", 0)
+    with block_decoder.worker_pool(str(path)) as pool:
         assert pool is not None or path.stat().st_size == 0
     parallel = _outcome(path)
     assert parallel == sequential
@@ -105,4 +105,4 @@ def test_workers_reading_byte_ranges_find_what_one_process_finds(tmp_path, monke
 def test_the_c_allocator_takes_the_settings_that_keep_freed_memory():
     # mallopt answers 0 for a parameter or value it refuses: then every block's
     # temporaries would be faulted in afresh again (DEVELOPERS.md).
-    assert bulk.keep_freed_memory() is True
+    assert block_decoder.keep_freed_memory() is True

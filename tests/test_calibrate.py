@@ -16,12 +16,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from receiver.calibrate import push_calibration, spin_calibration
-from receiver.clip import clip_from_columns
+from receiver.analysis.calibrate import push_calibration, spin_calibration
+from receiver.analysis.sample_clip import clip_from_columns
 from receiver.errors import UsageError
-from receiver.profile import load_profile
-from receiver.recompute import columns_from_samples
-from receiver.simulate import parse_faults, simulate
+from receiver.formats.profile_toml import load_profile
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.faults import parse_faults
+from receiver.sim.simulate import simulate
 
 FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")

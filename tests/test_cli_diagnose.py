@@ -8,9 +8,10 @@ from pathlib import Path
 import pytest
 
 from receiver.cli import main
-from receiver.profile import load_profile
-from receiver.recording import RecordingWriter
-from receiver.simulate import parse_faults, simulate
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.recording_writer import RecordingWriter
+from receiver.odometry.faults import parse_faults
+from receiver.sim.simulate import simulate
 from tests.conftest import FIXTURES
 from tests.synthetic import constant_twist_messages, write_recording
 

@@ -151,8 +151,9 @@ def test_console_script_runs_without_traceback(tmp_path):
 
 
 def test_csv_values_equal_the_engine(tmp_path, capsys, practice_profile):
-    from receiver.protocol import Sample
-    from receiver.recompute import Tracker, columns_from_samples
+    from receiver.formats.protocol import Sample
+    from receiver.odometry.columns import columns_from_samples
+    from receiver.odometry.recompute import Tracker
 
     messages = constant_twist_messages(practice_profile, twist_per_s=(15.0, 6.0, -0.9))
     rec = write_recording(tmp_path / "run.jsonl", messages, [practice_profile])
@@ -170,7 +171,8 @@ class _Terminal(io.StringIO):
 
 
 def test_progress_shows_on_a_terminal_only(tmp_path, monkeypatch, practice_profile):
-    from receiver import cli, recording
+    from receiver.cli import offline_commands as cli
+    from receiver.formats import recording
 
     rec = write_recording(tmp_path / "run.jsonl", constant_twist_messages(practice_profile, seconds=40.0), [practice_profile])
     monkeypatch.setattr(recording, "_CHUNK_BYTES", 50_000)  # several blocks, several updates

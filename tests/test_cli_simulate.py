@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 
 from receiver.cli import main
-from receiver.recording import read_recording
+from receiver.formats.recording import read_recording
 from tests.conftest import FIXTURES
 
 PROFILE = str(FIXTURES / "practice-bot.toml")

@@ -8,8 +8,8 @@ import math
 import numpy as np
 import pytest
 
-from receiver.conventions import imu_heading_change, rep103_to_reported, reported_to_rep103
-from receiver.profile import Reported
+from receiver.odometry.conventions import imu_heading_change, rep103_to_reported, reported_to_rep103
+from receiver.odometry.robot import Reported
 
 ALL = [
     Reported(*combo)

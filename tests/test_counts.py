@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from receiver.counts import Kind, classify, count_change, decide, seq_ahead
+from receiver.odometry.counts import SampleKind, classify, count_change, decide, seq_ahead
 
 
 def test_signed_32_bit_wrap_is_a_small_step():
@@ -25,15 +25,15 @@ def test_seq_wraps_at_2_to_the_32():
 @pytest.mark.parametrize(
     ("last", "now", "expected"),
     [
-        ((100, 5.00), (101, 5.01, False), Kind.STEP),
-        ((100, 5.00), (105, 5.05, False), Kind.STEP),  # a gap: bridged by the cumulative counts
-        ((100, 5.00), (100, 5.00, False), Kind.DUPLICATE),
-        ((100, 5.00), (98, 4.98, False), Kind.LATE),
-        ((100, 5.00), (0, 0.02, False), Kind.RESTART),  # reboot: clock and seq start again
-        ((100, 5.00), (0, 5.02, False), Kind.RESTART),  # code restart: seq again, clock runs on
-        ((50_000, 500.0), (3, 499.9, False), Kind.RESTART),  # far behind: not a late packet
-        ((100, 5.00), (101, 5.01, True), Kind.RESET),
-        ((2**32 - 1, 5.00), (0, 5.01, False), Kind.STEP),
+        ((100, 5.00), (101, 5.01, False), SampleKind.STEP),
+        ((100, 5.00), (105, 5.05, False), SampleKind.STEP),  # a gap: bridged by the cumulative counts
+        ((100, 5.00), (100, 5.00, False), SampleKind.DUPLICATE),
+        ((100, 5.00), (98, 4.98, False), SampleKind.LATE),
+        ((100, 5.00), (0, 0.02, False), SampleKind.RESTART),  # reboot: clock and seq start again
+        ((100, 5.00), (0, 5.02, False), SampleKind.RESTART),  # code restart: seq again, clock runs on
+        ((50_000, 500.0), (3, 499.9, False), SampleKind.RESTART),  # far behind: not a late packet
+        ((100, 5.00), (101, 5.01, True), SampleKind.RESET),
+        ((2**32 - 1, 5.00), (0, 5.01, False), SampleKind.STEP),
     ],
 )
 def test_decide(last, now, expected):
@@ -56,15 +56,15 @@ def test_batch_classification_equals_the_scalar_rule():
     reset[700] = True
     kinds = classify(seq, t, reset)
     last = (int(seq[0]), float(t[0]))
-    assert kinds[0] == Kind.FIRST
+    assert kinds[0] == SampleKind.FIRST
     for k in range(1, 2000):
         expected = decide(*last, int(seq[k]), float(t[k]), bool(reset[k]))
         assert kinds[k] == expected, k
-        if expected in (Kind.STEP, Kind.RESET, Kind.RESTART):
+        if expected in (SampleKind.STEP, SampleKind.RESET, SampleKind.RESTART):
             last = (int(seq[k]), float(t[k]))
-    assert kinds[1500] == Kind.RESTART and kinds[700] == Kind.RESET
-    assert np.count_nonzero(kinds == Kind.LATE) >= 20
-    assert np.count_nonzero(kinds == Kind.DUPLICATE) >= 5
+    assert kinds[1500] == SampleKind.RESTART and kinds[700] == SampleKind.RESET
+    assert np.count_nonzero(kinds == SampleKind.LATE) >= 20
+    assert np.count_nonzero(kinds == SampleKind.DUPLICATE) >= 5
 
 
 def test_fed_in_pieces_equals_fed_whole():
@@ -75,4 +75,4 @@ def test_fed_in_pieces_equals_fed_whole():
     first = classify(seq[:4], t[:4], reset[:4])
     rest = classify(seq[4:], t[4:], reset[4:], last=(9, 10.09))
     np.testing.assert_array_equal(whole, np.concatenate([first, rest]))
-    assert list(whole) == [Kind.FIRST, Kind.STEP, Kind.DUPLICATE, Kind.STEP, Kind.LATE, Kind.STEP, Kind.RESTART, Kind.STEP, Kind.STEP]
+    assert list(whole) == [SampleKind.FIRST, SampleKind.STEP, SampleKind.DUPLICATE, SampleKind.STEP, SampleKind.LATE, SampleKind.STEP, SampleKind.RESTART, SampleKind.STEP, SampleKind.STEP]

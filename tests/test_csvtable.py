@@ -8,7 +8,7 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from receiver import csvtable
+from receiver.formats import csv_writer
 
 
 def _python_cell(value, decimals):
@@ -25,7 +25,7 @@ def _python_cell(value, decimals):
 )
 def test_floats_match_python_format(values, decimals):
     arr = np.array(values, dtype=float)
-    text = csvtable.format_rows([(arr, decimals)]).decode()
+    text = csv_writer.format_rows([(arr, decimals)]).decode()
     expected = "".join(_python_cell(v, decimals) + "\n" for v in values)
     # Python rounds the exact binary value, numpy's rint the scaled value:
     # they may differ by one in the last digit on ties, or by a double's
@@ -40,19 +40,19 @@ def test_floats_match_python_format(values, decimals):
 def test_rows_with_names_ints_and_empty_cells():
     seq = np.array([7, 8, 123456], dtype=np.int64)
     x = np.array([1.5, -0.25, np.nan])
-    text = csvtable.format_rows([b"bot-1", (seq, 0), (x, 3)]).decode()
+    text = csv_writer.format_rows([b"bot-1", (seq, 0), (x, 3)]).decode()
     assert text == "bot-1,7,1.500\nbot-1,8,-0.250\nbot-1,123456,\n"
 
 
 def test_negative_zero_prints_without_sign():
-    assert csvtable.format_rows([(np.array([-0.0000001, -0.0]), 3)]) == b"0.000\n0.000\n"
+    assert csv_writer.format_rows([(np.array([-0.0000001, -0.0]), 3)]) == b"0.000\n0.000\n"
 
 
 def test_write_in_blocks_equals_one_block(monkeypatch):
     rng = np.random.default_rng(2)
     cols = [b"r", (np.arange(1000), 0), (rng.normal(size=1000) * 100, 6)]
-    whole = csvtable.format_rows(cols)
-    monkeypatch.setattr(csvtable, "_ROWS_PER_BLOCK", 37)
+    whole = csv_writer.format_rows(cols)
+    monkeypatch.setattr(csv_writer, "_ROWS_PER_BLOCK", 37)
     out = io.BytesIO()
-    csvtable.write(out, cols)
+    csv_writer.write(out, cols)
     assert out.getvalue() == whole

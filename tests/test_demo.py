@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from receiver.counts import Kind
-from receiver.demo import SimulatedRobot, demo_profile
-from receiver.live import ServeConfig
-from receiver.simulate import parse_faults
+from receiver.live.demo import SimulatedRobot, demo_profile
+from receiver.live.serve import ServeConfig
+from receiver.odometry.counts import SampleKind
+from receiver.odometry.faults import parse_faults
 from tests.transports.harness import live_receiver, wait_until
 
 
@@ -23,7 +23,7 @@ def test_runs_follow_on_with_a_reset_and_no_gaps(practice_profile):
         robot.start()
         try:
             def resets() -> int:
-                return int(np.count_nonzero(receiver.hub.history(practice_profile.name)["kind"] == Kind.RESET))
+                return int(np.count_nonzero(receiver.hub.history(practice_profile.name)["kind"] == SampleKind.RESET))
             wait_until(lambda: resets() >= 2, "two follow-on runs")
         finally:
             robot.stop()

@@ -12,13 +12,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from receiver.clip import clip_from_columns, last_seconds
-from receiver.diagnose import diagnose, diagnose_recent, equivalence_classes
+from receiver.analysis.diagnose import diagnose, diagnose_recent, equivalence_classes
+from receiver.analysis.mistakes import hypotheses, single_mistakes, verdict
+from receiver.analysis.sample_clip import clip_from_columns, last_seconds
 from receiver.errors import UsageError
-from receiver.mistakes import hypotheses, single_mistakes, verdict
-from receiver.profile import load_profile
-from receiver.recompute import Columns, concat_columns, columns_from_samples
-from receiver.simulate import parse_faults, robot_code_profile, simulate
+from receiver.formats.profile_toml import load_profile
+from receiver.odometry.columns import Columns, columns_from_samples, concat_columns
+from receiver.odometry.faults import parse_faults, robot_code_profile
+from receiver.sim.simulate import simulate
 
 FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")

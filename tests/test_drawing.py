@@ -22,7 +22,7 @@ def test_drawing_names_every_wheel_with_signed_offsets(practice_profile, metric_
 def test_bundled_drawing_is_current():
     # The README shows dashboard/profile-practice-bot.svg; regenerate with
     # python -m dashboard.drawing replay_fixtures/practice-bot.toml dashboard/profile-practice-bot.svg
-    from receiver.profile import load_profile
+    from receiver.formats.profile_toml import load_profile
 
     bundled = (FIXTURES.parent / "dashboard" / "profile-practice-bot.svg").read_text()
     assert bundled == profile_svg(load_profile(FIXTURES / "practice-bot.toml"))

@@ -14,12 +14,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from receiver.clip import clip_from_columns
-from receiver.guided import guided_check
-from receiver.profile import load_profile
-from receiver.recompute import columns_from_samples
-from receiver.recording import read_recording
-from receiver.simulate import parse_faults, robot_code_profile, simulate
+from receiver.analysis.guided_check import guided_check
+from receiver.analysis.sample_clip import clip_from_columns
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.recording import read_recording
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.faults import parse_faults, robot_code_profile
+from receiver.sim.simulate import simulate
 
 FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")

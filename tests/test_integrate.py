@@ -12,8 +12,8 @@ from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 from spatialmath.base import trexp2
 
-from receiver.integrate import METHODS, integrate, step, wrap_angle
-from receiver.kinematics import Kinematics
+from receiver.odometry.integrate import METHODS, integrate, step, wrap_angle
+from receiver.odometry.kinematics import Kinematics
 
 
 def _se2(pose):

@@ -7,8 +7,9 @@ import math
 import numpy as np
 import pytest
 
-from receiver.kinematics import Kinematics, observable
-from receiver.profile import Wheel, profile_from_table, profile_to_table
+from receiver.formats.profile_toml import profile_from_table, profile_to_table
+from receiver.odometry.kinematics import Kinematics, observable
+from receiver.odometry.robot import Wheel
 
 
 def test_common_layout_matches_the_closed_form(practice_profile):

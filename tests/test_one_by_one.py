@@ -12,15 +12,17 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from receiver import session as session_module
-from receiver.conventions import OneSample, imu_heading_change, reported_to_rep103
-from receiver.counts import Kind, count_change, count_change_one
-from receiver.integrate import METHODS, step, step_one, wrap_angle, wrap_angle_one
-from receiver.kinematics import Kinematics
-from receiver.profile import Reported, load_profile
-from receiver.protocol import Sample
-from receiver.recompute import Tracker, columns_from_samples
-from receiver.session import Hub
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.protocol import Sample
+from receiver.live import session as session_module
+from receiver.live.hub import Hub
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.conventions import OneSample, imu_heading_change, reported_to_rep103
+from receiver.odometry.counts import SampleKind, count_change, count_change_one
+from receiver.odometry.integrate import METHODS, step, step_one, wrap_angle, wrap_angle_one
+from receiver.odometry.kinematics import Kinematics
+from receiver.odometry.recompute import Tracker
+from receiver.odometry.robot import Reported
 from tests.conftest import FIXTURES
 
 PROFILE = load_profile(FIXTURES / "practice-bot.toml")
@@ -94,8 +96,8 @@ def one_by_one(tracker: Tracker, samples: list[Sample]) -> dict:
         "loop_s": np.array([r.loop_s for _, r in kept]),
         "position_error": np.array([r.position_error for _, r in kept]),
         "heading_error": np.array([r.heading_error for _, r in kept]),
-        "duplicate": sum(r.kind is Kind.DUPLICATE for r in steps),
-        "late": sum(r.kind is Kind.LATE for r in steps),
+        "duplicate": sum(r.kind is SampleKind.DUPLICATE for r in steps),
+        "late": sum(r.kind is SampleKind.LATE for r in steps),
     }
 
 
@@ -166,7 +168,7 @@ def test_a_messy_stream_has_every_irregularity():
     """The generator above really produces what the equality tests claim to cover."""
     samples = messy_stream(3, 2000)
     kinds = Tracker(PROFILE).feed(columns_from_samples(samples, 3))
-    assert {Kind.FIRST, Kind.STEP, Kind.RESET, Kind.RESTART} <= set(kinds.kind.tolist())
+    assert {SampleKind.FIRST, SampleKind.STEP, SampleKind.RESET, SampleKind.RESTART} <= set(kinds.kind.tolist())
     assert kinds.dropped["duplicate"] > 0 and kinds.dropped["late"] > 0
     ticks = np.array([s.ticks for s in samples])
     assert np.any(np.abs(np.diff(ticks, axis=0)) > 2**31)  # a counter rolled over

@@ -7,7 +7,13 @@ import math
 import pytest
 
 from receiver.errors import ProfileError
-from receiver.profile import dump_profile, load_profile, profile_from_table, profile_to_table, write_profile
+from receiver.formats.profile_toml import (
+    dump_profile,
+    load_profile,
+    profile_from_table,
+    profile_to_table,
+    write_profile,
+)
 from tests.conftest import FIXTURES
 
 

@@ -8,7 +8,7 @@ import json
 
 import pytest
 
-from receiver.protocol import (
+from receiver.formats.protocol import (
     MAX_BATCH,
     Failure,
     Reason,

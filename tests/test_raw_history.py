@@ -7,12 +7,13 @@ import json
 import numpy as np
 import pytest
 
-from receiver.diagnose import diagnose, diagnose_recent
-from receiver.protocol import decode
-from receiver.raw_history import RawHistory
-from receiver.recompute import COLUMN_NAMES, columns_from_samples
-from receiver.session import Hub
-from receiver.simulate import parse_faults, simulate
+from receiver.analysis.diagnose import diagnose, diagnose_recent
+from receiver.formats.protocol import decode
+from receiver.live.hub import Hub
+from receiver.live.raw_history import RawHistory
+from receiver.odometry.columns import COLUMN_NAMES, columns_from_samples
+from receiver.odometry.faults import parse_faults
+from receiver.sim.simulate import simulate
 from tests.synthetic import constant_twist_messages
 
 RX0 = 1_790_000_000.0

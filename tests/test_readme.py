@@ -9,8 +9,9 @@ from pathlib import Path
 
 import pytest
 
-from receiver.cli import build_parser, main
-from receiver.live import ServeConfig
+from receiver.cli import main
+from receiver.cli.program import build_parser
+from receiver.live.serve import ServeConfig
 from tests.conftest import FIXTURES
 from tests.transports.harness import handled, live_receiver, wait_until
 

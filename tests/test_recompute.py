@@ -5,9 +5,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from receiver.counts import Kind
-from receiver.protocol import Sample
-from receiver.recompute import Tracker, columns_from_samples
+from receiver.formats.protocol import Sample
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.counts import SampleKind
+from receiver.odometry.recompute import Tracker
 from tests.synthetic import constant_twist_messages
 
 
@@ -32,7 +33,7 @@ def test_starts_at_the_first_reported_pose(practice_profile):
     np.testing.assert_allclose(result.pose[0], [30.0, -12.0, 1.0])
     # A constant offset in the robot's frame is not a constant offset after
     # rotation, so only the start is checked exactly.
-    assert result.kind[0] == Kind.FIRST
+    assert result.kind[0] == SampleKind.FIRST
 
 
 def test_origin_when_the_robot_sends_no_pose(practice_profile):
@@ -82,7 +83,7 @@ def test_reboot_re_anchors_instead_of_integrating_the_jump(practice_profile):
     after = constant_twist_messages(practice_profile, t0=0.5)  # counts, seq and clock start again
     result = Tracker(practice_profile).feed(_cols(before + after))
     k = len(before)
-    assert result.kind[k] == Kind.RESTART
+    assert result.kind[k] == SampleKind.RESTART
     # Re-anchored at the robot's reported pose (its own restart at the origin).
     np.testing.assert_allclose(result.pose[k], [0.0, 0.0, 0.0], atol=1e-12)
     assert np.nanmax(result.position_error) < 0.005
@@ -93,7 +94,7 @@ def test_reset_re_anchors_at_the_reported_pose(practice_profile):
     messages[120]["reset"] = True
     messages[120]["pose"] = [72.0, -36.0, 3.0]
     result = Tracker(practice_profile).feed(_cols(messages))
-    assert result.kind[120] == Kind.RESET
+    assert result.kind[120] == SampleKind.RESET
     np.testing.assert_allclose(result.pose[120], [72.0, -36.0, 3.0])
 
 

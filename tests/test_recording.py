@@ -10,10 +10,11 @@ import numpy as np
 import pytest
 
 from receiver.errors import RecordingError
-from receiver.profile import load_profile
-from receiver.protocol import Sample, encode
-from receiver.recompute import COLUMN_NAMES
-from receiver.recording import FLUSH_INTERVAL_S, GZIP_MAGIC, RecordingWriter, read_recording
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.protocol import Sample, encode
+from receiver.formats.recording import GZIP_MAGIC, read_recording
+from receiver.formats.recording_writer import FLUSH_INTERVAL_S, RecordingWriter
+from receiver.odometry.columns import COLUMN_NAMES
 
 FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PROFILE = load_profile(FIXTURES / "practice-bot.toml")

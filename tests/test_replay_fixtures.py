@@ -7,10 +7,11 @@ import importlib.util
 import numpy as np
 import pytest
 
-from receiver.profile import load_profile
-from receiver.recompute import Tracker
-from receiver.recording import read_recording
-from receiver.simulate import parse_faults, simulate
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.recording import read_recording
+from receiver.odometry.faults import parse_faults
+from receiver.odometry.recompute import Tracker
+from receiver.sim.simulate import simulate
 from tests.conftest import FIXTURES
 
 _spec = importlib.util.spec_from_file_location("regenerate", FIXTURES / "regenerate.py")

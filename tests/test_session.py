@@ -13,10 +13,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from receiver.protocol import Reason, Sample, decode, decode_keeping_raw, decode_message
-from receiver.recompute import Tracker, columns_from_samples
-from receiver.ring import RingBuffer
-from receiver.session import TRANSITIONS, Hub, LinkEvent, LinkState
+from receiver.formats.protocol import Reason, Sample, decode, decode_keeping_raw, decode_message
+from receiver.live.hub import Hub
+from receiver.live.ring_buffer import RingBuffer
+from receiver.live.session import TRANSITIONS, LinkEvent, LinkState
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.recompute import Tracker
 from tests.synthetic import constant_twist_messages
 
 RX0 = 1_790_000_000.0

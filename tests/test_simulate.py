@@ -9,14 +9,17 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from receiver.counts import count_change
 from receiver.errors import UsageError
-from receiver.integrate import wrap_angle
-from receiver.paths import FIELD_SIZE_IN, PATHS
-from receiver.profile import load_profile
-from receiver.recompute import Result, Tracker, columns_from_samples
-from receiver.recording import RecordingWriter, read_recording
-from receiver.simulate import Faults, Run, parse_faults, robot_code_profile, simulate
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.recording import read_recording
+from receiver.formats.recording_writer import RecordingWriter
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.counts import count_change
+from receiver.odometry.faults import Faults, parse_faults, robot_code_profile
+from receiver.odometry.integrate import wrap_angle
+from receiver.odometry.recompute import Result, Tracker
+from receiver.sim.motion_paths import FIELD_SIZE_IN, PATHS
+from receiver.sim.simulate import Run, simulate
 
 FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")  # inches, radians, counter-clockwise

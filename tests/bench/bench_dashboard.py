@@ -42,9 +42,10 @@ from dashboard import ids  # noqa: E402
 from dashboard.app import create_app  # noqa: E402
 from dashboard.settings import Settings  # noqa: E402
 from dashboard.sources import LiveSource, Station  # noqa: E402
-from receiver.profile import load_profile, write_profile  # noqa: E402
-from receiver.session import Hub  # noqa: E402
-from receiver.simulate import parse_faults, simulate  # noqa: E402
+from receiver.formats.profile_toml import load_profile, write_profile  # noqa: E402
+from receiver.live.hub import Hub  # noqa: E402
+from receiver.odometry.faults import parse_faults
+from receiver.sim.simulate import simulate  # noqa: E402
 
 PROFILE = ROOT / "replay_fixtures" / "practice-bot.toml"
 WINDOW_S = 60.0

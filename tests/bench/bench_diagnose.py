@@ -22,11 +22,13 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from receiver.diagnose import diagnose, equivalence_classes  # noqa: E402
-from receiver.mistakes import hypotheses  # noqa: E402
-from receiver.profile import load_profile  # noqa: E402
-from receiver.recompute import Tracker, columns_from_samples  # noqa: E402
-from receiver.simulate import parse_faults, simulate  # noqa: E402
+from receiver.analysis.diagnose import diagnose, equivalence_classes  # noqa: E402
+from receiver.analysis.mistakes import hypotheses  # noqa: E402
+from receiver.formats.profile_toml import load_profile  # noqa: E402
+from receiver.odometry.columns import columns_from_samples  # noqa: E402
+from receiver.odometry.faults import parse_faults
+from receiver.odometry.recompute import Tracker
+from receiver.sim.simulate import simulate  # noqa: E402
 
 PROFILE = ROOT / "replay_fixtures" / "practice-bot.toml"
 FAULTS = ["reversed:right", "slip:0.02", "drop:0.02", "reorder:0.01", "duplicate:0.01"]

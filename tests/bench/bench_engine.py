@@ -30,9 +30,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from receiver.integrate import integrate  # noqa: E402
-from receiver.kinematics import Kinematics  # noqa: E402
-from receiver.profile import load_profile, profile_to_table  # noqa: E402
+from receiver.formats.profile_toml import load_profile, profile_to_table  # noqa: E402
+from receiver.odometry.integrate import integrate  # noqa: E402
+from receiver.odometry.kinematics import Kinematics  # noqa: E402
 from tests.bench.plain_baseline import loop_arc  # noqa: E402
 
 PROFILE = ROOT / "replay_fixtures" / "practice-bot.toml"

@@ -66,12 +66,12 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from receiver.live import Pump, settle_heap  # noqa: E402
-from receiver.profile import load_profile  # noqa: E402
-from receiver.raw_history import RawHistory  # noqa: E402
-from receiver.recording import RecordingWriter  # noqa: E402
-from receiver.session import Hub  # noqa: E402
-from receiver.transports.udp import UdpReceiver  # noqa: E402
+from receiver.formats.profile_toml import load_profile  # noqa: E402
+from receiver.formats.recording_writer import RecordingWriter  # noqa: E402
+from receiver.live.hub import Hub  # noqa: E402
+from receiver.live.raw_history import RawHistory  # noqa: E402
+from receiver.live.serve import Pump, settle_heap  # noqa: E402
+from receiver.live.transports.udp import UdpReceiver  # noqa: E402
 
 _HERE = str(Path(__file__).resolve().parents[2])
 PROFILE = Path(_HERE) / "replay_fixtures" / "practice-bot.toml"

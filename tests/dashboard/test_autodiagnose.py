@@ -7,7 +7,18 @@ import math
 import numpy as np
 import pytest
 
-from dashboard.autodiagnose import RETRY_TICKS, STALL_TICKS, TRANSITIONS, Level, Thresholds, Watch, WatchEvent, WatchState, level, step
+from dashboard.autodiagnose import (
+    RETRY_TICKS,
+    STALL_TICKS,
+    TRANSITIONS,
+    Level,
+    Thresholds,
+    Watch,
+    WatchEvent,
+    WatchState,
+    level,
+    step,
+)
 
 LIMITS = Thresholds(position=2.0, heading_rad=math.radians(5.0))
 PAST = Level(past=True, down=False, rx=1.0)

@@ -4,7 +4,7 @@ A click that comes while a tick's call of the same callback still waits in
 the page is merged into that call: the request then names the tick first
 and the click after it (dash-renderer merges the waiting calls' changed
 properties, oldest first). Every trigger must count. The views' update
-sends every readout text for the page to paint (callbacks.NEXT), and the
+sends every readout text for the page to paint (pacing.PAINT_AND_ASK_NEXT), and the
 link table and status line once a second.
 """
 
@@ -16,11 +16,12 @@ from pathlib import Path
 
 import pytest
 
-from dashboard import callbacks, ids, layout
+from dashboard import callbacks, ids, readout_texts
 from dashboard.app import create_app
 from dashboard.sources import LiveSource, ReplaySource, Station
-from receiver.recording import read_recording
-from receiver.session import Hub, LinkState, RobotSnapshot
+from receiver.formats.recording import read_recording
+from receiver.live.hub import Hub
+from receiver.live.session import LinkState, RobotSnapshot
 
 REVERSED = Path(__file__).resolve().parents[2] / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"
 
@@ -130,7 +131,7 @@ def snapshot(robot: str, state: LinkState, **changes) -> RobotSnapshot:
 
 
 def test_the_link_table_is_one_piece_of_html_with_every_text_escaped():
-    table = layout.link_table(
+    table = readout_texts.link_table(
         {"bot-b": snapshot("bot-b", LinkState.QUIET, errors={"not_json": 4, "bad<type>": 1}),
          "bot-a": snapshot("bot-a", LinkState.LIVE)},
         now=96.4, selected="bot-b", unattributed={"too_large": 2},

@@ -11,13 +11,14 @@ from dashboard import diagnosis_panel
 from dashboard.app import create_app
 from dashboard.diagnosis_content import diagnosis_view, guided_intro, guided_view
 from dashboard.sources import ReplaySource, Station
-from receiver.clip import clip_from_columns
-from receiver.diagnose import diagnose, diagnose_recent
-from receiver.guided import guided_check
-from receiver.profile import load_profile
-from receiver.recording import read_recording
-from receiver.simulate import parse_faults, robot_code_profile, simulate
-from receiver.recompute import columns_from_samples
+from receiver.analysis.diagnose import diagnose, diagnose_recent
+from receiver.analysis.guided_check import guided_check
+from receiver.analysis.sample_clip import clip_from_columns
+from receiver.formats.profile_toml import load_profile
+from receiver.formats.recording import read_recording
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.faults import parse_faults, robot_code_profile
+from receiver.sim.simulate import simulate
 
 FIXTURES = Path(__file__).resolve().parents[2] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from dashboard import readouts
-from receiver.counts import Kind
+from receiver.odometry.counts import SampleKind
 
 IN = 0.0254  # metres per inch (SI definition)
 
@@ -19,7 +19,7 @@ def test_disagreement_numbers_on_a_straight_drive_with_a_turn():
     pose = np.array([[0, 0, 0], [step_in, 0, 0], [2 * step_in, 0, 0], [2 * step_in, step_in, math.pi / 2]])
     position_error = np.array([0.0, 1.0, 2.0, 4.0])
     heading_error = np.radians([0.0, 1.0, 2.0, 5.0])
-    kind = np.array([Kind.FIRST, Kind.STEP, Kind.STEP, Kind.STEP])
+    kind = np.array([SampleKind.FIRST, SampleKind.STEP, SampleKind.STEP, SampleKind.STEP])
     d = readouts.disagreement(pose, position_error, heading_error, kind, IN)
     assert d.position_now == 4.0 and d.position_worst == 4.0
     assert d.heading_now_deg == pytest.approx(5.0) and d.heading_worst_deg == pytest.approx(5.0)
@@ -36,7 +36,7 @@ def test_growth_counts_only_since_the_last_re_anchor():
     pose = np.array([[0, 0, 0], [step_in, 0, 0], [0, 0, 0], [step_in, 0, 0], [2 * step_in, 0, 0]])
     position_error = np.array([0.0, 9.0, 0.0, 0.5, 1.0])
     heading_error = np.zeros(5)
-    kind = np.array([Kind.FIRST, Kind.STEP, Kind.RESET, Kind.STEP, Kind.STEP])
+    kind = np.array([SampleKind.FIRST, SampleKind.STEP, SampleKind.RESET, SampleKind.STEP, SampleKind.STEP])
     d = readouts.disagreement(pose, position_error, heading_error, kind, IN)
     assert d.position_worst == 9.0  # worst in the whole window
     assert d.travelled_m == pytest.approx(1.0)
@@ -49,8 +49,8 @@ def test_heading_growth_follows_an_error_past_half_a_turn():
     pose = np.column_stack([np.zeros(9), np.zeros(9), turn])
     true_error = np.linspace(0.0, 2 * math.pi, 9)  # 360 deg of error over two turns
     wrapped = (true_error + math.pi) % (2 * math.pi) - math.pi
-    kind = np.full(9, Kind.STEP)
-    kind[0] = Kind.FIRST
+    kind = np.full(9, SampleKind.STEP)
+    kind[0] = SampleKind.FIRST
     d = readouts.disagreement(pose, np.zeros(9), wrapped, kind, IN)
     assert d.turns == pytest.approx(2.0)
     assert d.heading_per_turn_deg == pytest.approx(180.0)

@@ -12,8 +12,8 @@ from dashboard.downsample import pick_rows
 from dashboard.settings import Settings, parse_length
 from dashboard.sources import ReplaySource, Station
 from receiver.errors import PodwatchError, UsageError
-from receiver.recording import read_recording
-from receiver.session import LinkState, RobotSnapshot
+from receiver.formats.recording import read_recording
+from receiver.live.session import LinkState, RobotSnapshot
 from tests.dashboard.test_figures import values
 
 FIXTURES = Path(__file__).resolve().parents[2] / "replay_fixtures"

@@ -10,8 +10,8 @@ from pathlib import Path
 
 import pytest
 
-from receiver.live import ServeConfig
-from receiver.recording import read_recording
+from receiver.formats.recording import read_recording
+from receiver.live.serve import ServeConfig
 from tests.transports.harness import handled, live_receiver, wait_until
 
 SENDERS = Path(__file__).resolve().parents[2] / "receiver" / "senders"

@@ -8,7 +8,7 @@ import time
 from contextlib import contextmanager
 from typing import Callable, Iterator
 
-from receiver.live import LiveReceiver, ServeConfig
+from receiver.live.serve import LiveReceiver, ServeConfig
 
 # A deadline for traffic to arrive, not a speed check: loopback delivers in
 # milliseconds; the margin covers a loaded test machine.

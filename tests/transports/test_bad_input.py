@@ -14,11 +14,12 @@ import pytest
 from websockets.asyncio.client import connect
 from websockets.exceptions import ConnectionClosed, InvalidStatus
 
-from receiver.live import ServeConfig
-from receiver.protocol import Reason, decode
-from receiver.recompute import Tracker, columns_from_samples
-from receiver.recording import read_recording
-from receiver.session import DEFAULT_MAX_ROBOTS
+from receiver.formats.protocol import Reason, decode
+from receiver.formats.recording import read_recording
+from receiver.live.hub import DEFAULT_MAX_ROBOTS
+from receiver.live.serve import ServeConfig
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.recompute import Tracker
 from tests.malformed import DECODER_CASES
 from tests.synthetic import constant_twist_messages
 from tests.transports.harness import handled, live_receiver, wait_until

@@ -12,10 +12,10 @@ import aiomqtt
 import msgspec
 import numpy as np
 
-from receiver.live import ServeConfig
-from receiver.protocol import encode
-from receiver.simulate import simulate
-from receiver.transports.mqtt import PoseMessage, batch_payloads, parse_mqtt_url
+from receiver.formats.protocol import PoseMessage, encode
+from receiver.live.serve import ServeConfig
+from receiver.live.transports.mqtt import batch_payloads, parse_mqtt_url
+from receiver.sim.simulate import simulate
 from tests.transports.harness import handled, live_receiver, wait_until
 
 

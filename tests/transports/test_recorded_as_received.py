@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 
 from receiver.cli import main
-from receiver.live import ServeConfig
-from receiver.recompute import COLUMN_NAMES
-from receiver.recording import read_recording
-from receiver.transports.send import open_sender
+from receiver.formats.recording import read_recording
+from receiver.live.serve import ServeConfig
+from receiver.live.transports.send import open_sender
+from receiver.odometry.columns import COLUMN_NAMES
 from tests.synthetic import constant_twist_messages
 from tests.transports.harness import handled, listen_on, live_receiver, sender_url, wait_until
 

@@ -11,10 +11,10 @@ import numpy as np
 import pytest
 
 from receiver.cli import main
-from receiver.integrate import wrap_angle
-from receiver.live import ServeConfig
-from receiver.recording import read_recording
-from receiver.simulate import simulate
+from receiver.formats.recording import read_recording
+from receiver.live.serve import ServeConfig
+from receiver.odometry.integrate import wrap_angle
+from receiver.sim.simulate import simulate
 from tests.conftest import FIXTURES
 from tests.transports.harness import handled, listen_on, live_receiver, sender_url, wait_until
 

@@ -9,11 +9,12 @@ import time
 
 import numpy as np
 
-from receiver.protocol import encode
-from receiver.recompute import Tracker, columns_from_samples
-from receiver.session import Hub
-from receiver.simulate import simulate
-from receiver.transports.udp import MAX_DATAGRAMS_PER_PASS, UdpReceiver
+from receiver.formats.protocol import encode
+from receiver.live.hub import Hub
+from receiver.live.transports.udp import MAX_DATAGRAMS_PER_PASS, UdpReceiver
+from receiver.odometry.columns import columns_from_samples
+from receiver.odometry.recompute import Tracker
+from receiver.sim.simulate import simulate
 from tests.transports.harness import wait_until
 
 

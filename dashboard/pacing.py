@@ -1,0 +1,92 @@
+"""How often the page asks the server for news: the page-side scripts that pace its requests.
+
+Owns the three small scripts the callbacks register on the page (a gate for
+ticking panels, the views' watchdog, and the script that paints each
+answer and asks for the next) and ``triggered_ids``. Strings and one helper:
+no components, no callbacks of its own.
+"""
+
+from __future__ import annotations
+
+from dash import ctx
+
+from dashboard import ids
+
+# A tick asks for an update only once the previous one has been answered, so
+# that a slow browser or server never piles up requests (Dash drops the answer
+# to a request that a newer one overtook, and the page would stand still).
+# After STALL_TICKS unanswered ticks it asks again anyway. The diagnosis and
+# guided-check panels tick through this gate.
+STALL_TICKS = 25
+ASK_WHEN_ANSWERED = f"""
+function(n, cursor, request) {{
+    if (!request || (cursor && cursor.tick === request.tick) || n - request.tick > {STALL_TICKS}) {{
+        return {{tick: n || 0, at: Date.now()}};
+    }}
+    return window.dash_clientside.no_update;
+}}
+"""
+# The views are paced by their answers instead (PAINT_AND_ASK_NEXT): each answer asks for
+# the next update at once, though no sooner than MIN_GAP_MS after the
+# previous request, without a tick in between (a tick and its gate cost the
+# page a callback run's bookkeeping per update). Their interval is a
+# watchdog: it asks when nothing is on its way, on the page's start, on
+# Follow after Pause page, and STALL_MS after a request whose answer never
+# came. The replay bar asks for its position with every request, while the
+# bar is shown (no request per tick when live).
+MIN_GAP_MS = 100
+RESUME_MS = 1000  # more than MIN_GAP_MS: an answered request this old has no next one coming
+STALL_MS = 10_000
+_ASK = """
+    const ask = {tick: (request ? request.tick : 0) + 1, at: Date.now()};
+    const replaying = !(barClass || "").includes("hidden");
+"""
+WATCHDOG = f"""
+function(n, cursor, request, barClass) {{
+    const age = request ? Date.now() - (request.at || 0) : Infinity;
+    const answered = !request || (cursor && cursor.tick === request.tick);
+    if (!(answered ? age > {RESUME_MS} : age > {STALL_MS})) {{
+        return [window.dash_clientside.no_update, window.dash_clientside.no_update];
+    }}
+    {_ASK.strip()}
+    return [ask, replaying ? ask : window.dash_clientside.no_update];
+}}
+"""
+# Each answer also paints texts (cursor["paint"]: readouts, status line, link
+# table) straight into their elements, which hold no children for React: sent
+# as components' children, every text cost the page a round of Dash's
+# bookkeeping (which runs over every component on the page), and every cell of
+# a rebuilt link table one more. Every answer carries every readout (a few
+# hundred bytes), not only those that changed: Dash may run this function once
+# for two answers that came close together, and the first one's texts would
+# be lost for as long as they did not change. The page skips unchanged texts.
+PAINT_AND_ASK_NEXT = f"""
+function(cursor, request, paused, barClass) {{
+    const paint = (cursor && cursor.paint) || {{}};
+    for (const [id, text] of Object.entries(paint.text || {{}})) {{
+        const element = document.getElementById(id);
+        if (element && element.textContent !== text) {{ element.textContent = text; }}
+    }}
+    for (const [id, markup] of Object.entries(paint.html || {{}})) {{
+        const element = document.getElementById(id);
+        if (element) {{ element.innerHTML = markup; }}
+    }}
+    if (paused || !cursor || !request || cursor.tick !== request.tick) {{ return; }}
+    const next = () => {{
+        {_ASK.strip()}
+        window.dash_clientside.set_props("{ids.REQUEST}", {{data: ask}});
+        if (replaying) {{ window.dash_clientside.set_props("{ids.REPLAY_REQUEST}", {{data: ask}}); }}
+    }};
+    const wait = {MIN_GAP_MS} - (Date.now() - (request.at || 0));
+    if (wait > 0) {{ setTimeout(next, wait); }} else {{ next(); }}
+}}
+"""
+def triggered_ids() -> list[str]:
+    """The ids of every input that triggered the running callback, first seen first.
+
+    Dash merges the triggers of calls of one callback that wait in the page
+    at once into one call; each of them must count.
+    """
+    return list(dict.fromkeys(ctx.triggered_prop_ids.values()))
+
+

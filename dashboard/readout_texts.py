@@ -1,0 +1,67 @@
+"""The texts the page paints into its readouts and link table, built from numbers.
+
+Owns how each readout and the link-health table read (units, dashes for
+unknown values, escaped HTML). The page's own script paints them into their
+elements (pacing.py): sent as components' children, each text cost the page
+a round of Dash's bookkeeping. Pure: numbers in, strings out.
+"""
+
+from __future__ import annotations
+
+import math
+from html import escape
+
+from dashboard import readouts
+from receiver.live.session import LinkState, RobotSnapshot
+
+
+def disagreement_values(d: readouts.Disagreement | None, unit: str) -> list[str]:
+    """Texts for POSITION_NOW ... HEADING_GROWTH, in that order."""
+    if d is None:
+        d = readouts.Disagreement(*([math.nan] * 6), 0.0, 0.0)
+    q = readouts.quote
+    return [
+        q(d.position_now, unit), q(d.position_worst, unit), q(d.position_per_m, f"{unit}/m"),
+        q(d.heading_now_deg, "deg", 1), q(d.heading_worst_deg, "deg", 1), q(d.heading_per_turn_deg, "deg/turn", 1),
+    ]
+
+
+def loop_values(loop: readouts.LoopTiming, jitter_s: float) -> list[str]:
+    """Texts for LOOP_RATE ... JITTER, in that order."""
+    q = readouts.quote
+    return [
+        q(loop.rate_hz, "Hz", 1), q(loop.mean_s * 1000, "ms", 1), q(loop.p95_s * 1000, "ms", 1),
+        q(loop.max_s * 1000, "ms", 1), f"{loop.long} loop{'' if loop.long == 1 else 's'}",
+        q(jitter_s * 1000, "ms", 2),
+    ]
+
+
+_STATE_CLASS = {LinkState.LIVE: "live", LinkState.QUIET: "quiet", LinkState.WAITING: "waiting"}
+LINK_HEAD = ("robot", "link", "messages", "rate", "gaps", "duplicates", "out of order", "decode errors")
+
+
+def _cell(tag: str, text: str, css_class: str = "") -> str:
+    attribute = f' class="{css_class}"' if css_class else ""
+    return f"<{tag}{attribute}>{escape(text)}</{tag}>"
+
+
+def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> str:
+    """The link-health table as HTML (every text escaped), one row per robot."""
+    rows = []
+    for robot, s in sorted(snapshots.items()):
+        if s.state is LinkState.QUIET:
+            state = f"no data for {max(now - s.last_rx, 0.0):.0f} s"
+        else:
+            state = s.state.value
+        errors = ", ".join(f"{reason} {n}" for reason, n in sorted(s.errors.items())) or "none"
+        cells = [_cell("td", robot), _cell("td", state, f"state {_STATE_CLASS[s.state]}")] + [
+            _cell("td", text) for text in (f"{s.messages}", f"{s.rate_hz:.0f} msg/s", f"{s.gaps}", f"{s.duplicates}",
+                                           f"{s.late}", errors)]
+        row_class = ' class="selected"' if robot == selected else ""
+        rows.append(f"<tr{row_class}>{''.join(cells)}</tr>")
+    caption = ""
+    if unattributed:
+        text = ", ".join(f"{reason} {n}" for reason, n in sorted(unattributed.items()))
+        caption = f"<caption>{escape(f'refused before a robot could be named: {text}')}</caption>"
+    head = "".join(_cell("th", h) for h in LINK_HEAD)
+    return f'<table class="link-table"><thead><tr>{head}</tr></thead><tbody>{"".join(rows)}</tbody>{caption}</table>'

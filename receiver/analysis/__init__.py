@@ -1,0 +1,14 @@
+"""The checks: diagnosis of convention mistakes, refinement, the guided check, calibration.
+
+Rules: uses receiver.odometry (and receiver.errors) only; never
+receiver.formats, receiver.sim, receiver.live, the command line or the
+page, so that the checks run on columns from a recording or from a live
+session alike. Pure numpy and scipy.
+
+What the layers above use:
+- sample_clip: ``clip_from_columns``, ``last_seconds``, ``SampleClip``
+- diagnose: ``diagnose``, ``diagnose_recent``, ``Diagnosis``, ``equivalence_classes``
+- guided_check: ``guided_check``, ``GuidedResult``, ``INSTRUCTIONS``, ``MOVES``
+- calibrate: ``spin_calibration``, ``push_calibration``, ``Calibration``
+- mistakes: ``profile_changes``, ``verdict``; wording: the shared words of results
+"""

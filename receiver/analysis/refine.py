@@ -1,0 +1,189 @@
+"""Refinement: the continuous constants the robot code uses, fitted to its reported pose.
+
+Owns the least-squares fit (scipy.optimize.least_squares) of track width,
+sideways-wheel forward offset and per-wheel distance scale for one
+hypothesis, their standard errors from the Jacobian, and which of them a
+clip actually determines. Pure: arrays and profiles in, a Fit out.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from receiver.analysis.mistakes import Hypothesis
+from receiver.analysis.sample_clip import SampleClip
+from receiver.odometry.conventions import imu_heading_change
+from receiver.odometry.integrate import integrate, wrap_angle
+from receiver.odometry.kinematics import Kinematics
+from receiver.odometry.robot import Profile, Wheel
+
+# A wheel within this of forward (or sideways) counts as rolling that way.
+_AXIS_TOLERANCE_DEG = 1.0
+# A constant is "determined" by a clip when its standard error is below this
+# fraction of its size (or of the robot's size, for an offset near zero).
+DETERMINED_REL = 0.01
+# A fitted value replaces the profile's only when it differs by more than
+# this fraction and by more than three standard errors: refitting noise
+# into a profile helps nobody.
+SIGNIFICANT_REL = 0.002
+# Singular values of the Jacobian below this fraction of the largest are
+# directions the clip says nothing about.
+_RANK_REL = 1e-7
+
+
+@dataclass(frozen=True)
+class Fitted:
+    name: str
+    before: float  # the value the hypothesis's profile has
+    fitted: float
+    std: float  # one standard error; inf when the clip does not determine it
+    unit: str
+    scale: float  # the size "determined" and "significant" are judged against
+
+    @property
+    def determined(self) -> bool:
+        return bool(self.std <= DETERMINED_REL * self.scale)
+
+    @property
+    def significant(self) -> bool:
+        change = abs(self.fitted - self.before)
+        return self.determined and change > max(3.0 * self.std, SIGNIFICANT_REL * self.scale)
+
+    def to_json(self) -> dict:
+        std = self.std if math.isfinite(self.std) else None
+        return {
+            "name": self.name,
+            "profile": round(self.before, 9),
+            "fitted": round(self.fitted, 9),
+            "std": None if std is None else float(f"{std:.3g}"),
+            "unit": self.unit,
+            "determined": self.determined,
+            "applied": self.significant,
+        }
+
+
+@dataclass
+class Fit:
+    values: list[Fitted]
+    score_before: float
+    score_after: float
+    profile: Profile  # the hypothesis's profile with the significant fitted values in it
+
+
+def rolls_along(wheel: Wheel, axis_deg: float) -> bool:
+    """True when the wheel rolls along the body axis at axis_deg (either way)."""
+    return abs((wheel.angle - axis_deg + 90.0) % 180.0 - 90.0) < _AXIS_TOLERANCE_DEG
+
+
+def forward_pair(profile: Profile) -> tuple[int, int] | None:
+    """Indices of the two forward-rolling wheels, when there are exactly two."""
+    found = [i for i, w in enumerate(profile.wheels) if rolls_along(w, 0.0)]
+    return (found[0], found[1]) if len(found) == 2 else None
+
+
+def sideways_wheels(profile: Profile) -> list[int]:
+    return [i for i, w in enumerate(profile.wheels) if rolls_along(w, 90.0)]
+
+
+class _Model:
+    """Profile <-> parameter vector (track width, sideways x offsets, distance scales)."""
+
+    def __init__(self, base: Profile, length: float) -> None:
+        self.base = base
+        self.pair = forward_pair(base)
+        if self.pair is not None and base.wheels[self.pair[0]].y == base.wheels[self.pair[1]].y:
+            self.pair = None  # no track width to fit (a sign hypothesis put both on one side)
+        self.sideways = sideways_wheels(base)
+        unit = base.distance_unit
+        names, values, scales, units = [], [], [], []
+        if self.pair is not None:
+            a, b = (base.wheels[i] for i in self.pair)
+            names.append("track width")
+            values.append(abs(a.y - b.y))
+            scales.append(abs(a.y - b.y))
+            units.append(unit)
+        for i in self.sideways:
+            names.append(f"{base.wheels[i].name} wheel forward offset")
+            values.append(base.wheels[i].x)
+            scales.append(length)
+            units.append(unit)
+        for w in base.wheels:
+            names.append(f"{w.name} wheel diameter")
+            values.append(w.diameter)
+            scales.append(w.diameter)
+            units.append(unit)
+        self.names, self.start = names, np.asarray(values)
+        self.scales, self.units = np.asarray(scales), units
+
+    def profile(self, p: np.ndarray) -> Profile:
+        wheels = list(self.base.wheels)
+        k = 0
+        if self.pair is not None:
+            i, j = self.pair
+            centre = 0.5 * (wheels[i].y + wheels[j].y)
+            side = math.copysign(0.5 * p[0], wheels[i].y - wheels[j].y)
+            wheels[i] = replace(wheels[i], y=centre + side)
+            wheels[j] = replace(wheels[j], y=centre - side)
+            k = 1
+        for i in self.sideways:
+            wheels[i] = replace(wheels[i], x=float(p[k]))
+            k += 1
+        for i in range(len(wheels)):
+            wheels[i] = replace(wheels[i], diameter=float(p[k]))
+            k += 1
+        return self.base.with_wheels(tuple(wheels))
+
+
+def _std_errors(jac: np.ndarray, residual_variance: float) -> np.ndarray:
+    """Standard errors from J (m, p); inf for parameters in directions the data leaves free."""
+    _, sv, vt = np.linalg.svd(jac, full_matrices=False)
+    free = sv <= _RANK_REL * sv[0] if sv.size and sv[0] > 0 else np.ones(sv.shape, dtype=bool)
+    inv = np.where(free, 0.0, 1.0 / np.where(free, 1.0, sv) ** 2)
+    var = (vt.T**2 * inv).sum(axis=1) * residual_variance
+    touches_free = ((vt[free].T ** 2) > 1e-12).any(axis=1) if free.any() else np.zeros(len(var), dtype=bool)
+    return np.where(touches_free, np.inf, np.sqrt(var))
+
+
+def refine(clip: SampleClip, hypothesis: Hypothesis, reported: np.ndarray, method: str, length: float) -> Fit:
+    """Fit the hypothesis's continuous constants so its recompute best matches ``reported`` (N, 3, REP 103).
+
+    Residuals are the anchored pose differences, heading weighted by the
+    robot's characteristic ``length`` (so both read as distances).
+    """
+    model = _Model(hypothesis.robot_profile, length)
+    anchor_at = np.flatnonzero(clip.anchor)
+    anchor_pose = reported[anchor_at]
+    dth_imu = None
+    if hypothesis.robot_profile.uses_imu:
+        prev = np.concatenate([clip.imu[:1], clip.imu[:-1]])
+        dth_imu = imu_heading_change(clip.imu, prev, hypothesis.robot_profile.reported)
+
+    def residuals(p: np.ndarray) -> np.ndarray:
+        kin = Kinematics(model.profile(p))
+        deltas = kin.body_delta(kin.travel(clip.dcounts), dth_imu)
+        deltas[clip.anchor] = 0.0
+        poses = integrate(deltas, np.zeros(3), method, anchor_at, anchor_pose)
+        d = poses - reported
+        return np.concatenate([d[:, 0], d[:, 1], length * wrap_angle(d[:, 2])])
+
+    def rms(r: np.ndarray) -> float:
+        return float(np.sqrt(3.0 * np.mean(r**2)))
+
+    start_residual = residuals(model.start)
+    # Imported here: scipy.optimize takes about a second to import, which every
+    # podwatch command would otherwise pay at start-up.
+    from scipy.optimize import least_squares
+
+    result = least_squares(residuals, model.start, x_scale=model.scales, method="trf")
+    m, p = len(result.fun), len(model.start)
+    variance = float(result.fun @ result.fun) / max(m - p, 1)
+    std = _std_errors(result.jac, variance)
+    values = [
+        Fitted(name, float(before), float(after), float(s), unit, float(scale))
+        for name, before, after, s, unit, scale in zip(model.names, model.start, result.x, std, model.units, model.scales)
+    ]
+    applied = np.where([v.significant for v in values], result.x, model.start)
+    return Fit(values, rms(start_residual), rms(residuals(applied)), model.profile(applied))

@@ -1,0 +1,253 @@
+"""The live commands of the command line: ``serve`` and ``replay``.
+
+Owns their options and plain-text output; the work is in live.py and
+replay.py. Kept apart from cli.py so that the offline commands stay small;
+program.py registers these with ``add_live_commands``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import signal
+import sys
+import threading
+import time
+from pathlib import Path
+
+from receiver.cli.common import counts_per_message, load_profiles, say, warn
+from receiver.errors import UsageError
+from receiver.formats.protocol import MQTT_PREFIX as DEFAULT_PREFIX
+from receiver.live.transports.udp import DEFAULT_UDP_HOST, DEFAULT_UDP_PORT
+from receiver.odometry.robot import Profile
+from receiver.sim.motion_paths import PATHS
+
+# The receiver (asyncio, websockets, aiomqtt) and the dashboard (Dash,
+# Plotly) are imported by the commands that run them, so that the offline
+# commands start quickly: `recompute` on a large file is timed with its start.
+
+
+def cmd_serve(args: argparse.Namespace) -> int:
+    import asyncio
+
+    from receiver.live.serve import ServeConfig, default_recording_path, parse_host_port, serve
+
+    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
+    udp = args.udp
+    if udp is None and args.ws is None and args.mqtt is None:
+        udp = f"{DEFAULT_UDP_HOST}:{DEFAULT_UDP_PORT}"
+    profiles = load_profiles(args.profile)
+    page = _PageServer(args, profiles)
+    config = ServeConfig(
+        profiles=profiles,
+        udp=parse_host_port(udp, DEFAULT_UDP_HOST) if udp else None,
+        ws=parse_host_port(args.ws, "127.0.0.1") if args.ws else None,
+        mqtt=args.mqtt,
+        forward=args.forward,
+        token=args.token,
+        record=Path(args.record) if args.record else default_recording_path(),
+        prefix=args.prefix,
+    )
+    if not config.profiles:
+        say("no --profile given: robots are shown and recorded but not recomputed")
+    try:
+        lines = asyncio.run(serve(config, say, on_start=None if args.no_dashboard else page.start_live))
+    finally:
+        page.stop()
+    for line in lines:
+        say(line)
+    return 0
+
+
+class _PageServer:
+    """The dashboard of one command run, started once the receiver listens."""
+
+    def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile]) -> None:
+        from dashboard.settings import Settings, parse_length
+        from receiver.live.serve import parse_host_port
+
+        self.args = args
+        self.profiles = profiles
+        self.server = None
+        self.station = None
+        if args.dashboard:
+            parse_host_port(args.dashboard, "127.0.0.1")
+        if not args.loop_threshold > 0:
+            raise UsageError(f"--loop-threshold must be positive, got {args.loop_threshold}")
+        # Checked before anything starts, so that a typo stops the command at once.
+        self.settings = Settings(
+            field_size_m=parse_length(args.field),
+            footprint_m=parse_length(args.footprint),
+            loop_threshold_s=args.loop_threshold / 1000.0,
+        )
+
+    def start_live(self, receiver) -> None:
+        from dashboard.server import start_dashboard
+        from dashboard.sources import LiveSource, Station
+
+        self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles)
+        self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
+
+    def start_replay(self, source) -> None:
+        from dashboard.server import start_dashboard
+        from dashboard.sources import Station
+
+        self.station = Station(replay=source, profiles=self.profiles)
+        self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
+
+    def stop(self) -> None:
+        if self.server is not None:
+            self.server.stop()
+        if self.station is not None:
+            self.station.close()
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    import asyncio
+
+    from receiver.live.demo import DEMO_FAULTS, SimulatedRobot, demo_profile
+    from receiver.live.serve import ServeConfig, parse_host_port, serve
+    from receiver.odometry.faults import parse_faults
+
+    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
+    if args.duration is not None and not args.duration > 0:
+        raise UsageError(f"--duration must be positive, got {args.duration}")
+    profile = demo_profile()
+    faults = parse_faults(args.fault if args.fault is not None else DEMO_FAULTS, profile)
+    config = ServeConfig(
+        profiles={profile.name: profile},
+        udp=parse_host_port(args.udp, "127.0.0.1"),
+        record=Path(args.record) if args.record else None,
+    )
+    page = _PageServer(args, config.profiles)
+    robots: list[SimulatedRobot] = []
+
+    def start(receiver) -> None:
+        page.start_live(receiver)
+        host, port = receiver.udp.address
+        robot = SimulatedRobot(profile, (host, port), args.path, args.rate, args.seed, faults)
+        robot.start()
+        robots.append(robot)
+        mistakes = ", ".join(args.fault if args.fault is not None else DEMO_FAULTS) or "none"
+        say(f"simulated {profile.name} driving {args.path} at {args.rate:g} Hz, mistakes: {mistakes}")
+
+    try:
+        lines = asyncio.run(serve(config, say, on_start=start, until=args.duration))
+    finally:
+        for robot in robots:
+            robot.stop()
+        page.stop()
+    for line in lines:
+        say(line)
+    return 0
+
+
+def cmd_replay(args: argparse.Namespace) -> int:
+    import asyncio
+
+    from receiver.formats.recording import read_recording
+    from receiver.live.hub import Hub
+    from receiver.live.replay import replay_into_hub, replay_to
+    from receiver.live.serve import summary_lines
+
+    if args.speed < 0:
+        raise UsageError(f"--speed must be 0 (as fast as possible) or positive, got {args.speed}")
+    cli_profiles = load_profiles(args.profile)
+    data = read_recording(args.recording, counts_per_message(cli_profiles))
+    for warning in data.warnings:
+        warn(warning)
+    if args.to:
+        sent = asyncio.run(replay_to(data, args.to, args.speed, token=args.token, prefix=args.prefix))
+        say(f"sent {sent} messages to {args.to}")
+        return 0
+    if args.dashboard:
+        return _replay_on_page(args, data, cli_profiles)
+    hub = Hub({**data.profiles, **cli_profiles})
+    started = time.monotonic()
+    count = replay_into_hub(data, hub, args.speed)
+    say(f"replayed {count} messages in {time.monotonic() - started:.1f} s")
+    for line in summary_lines(hub):
+        say(line)
+    return 0
+
+
+def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]) -> int:
+    """Replay on the dashboard, playing at --speed, until Ctrl-C."""
+    from dashboard.sources import REPLAY_SPEEDS, ReplaySource
+
+    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
+    source = ReplaySource(data, profiles)
+    source.set_speed(args.speed if args.speed > 0 else max(REPLAY_SPEEDS))
+    source.start()
+    page = _PageServer(args, profiles)
+    try:
+        page.start_replay(source)
+        source.play()
+        say(f"replaying {args.recording} ({source.duration_s:.1f} s) on the dashboard; Ctrl-C to stop")
+        stop = threading.Event()
+        # Both set here: a shell starts a background job with SIGINT ignored,
+        # and Python then installs no KeyboardInterrupt for it.
+        for sig in (signal.SIGINT, signal.SIGTERM):
+            signal.signal(sig, lambda *_: stop.set())
+        while not stop.wait(0.5):
+            pass
+    finally:
+        page.stop()
+    return 0
+
+
+def _dashboard_options(p: argparse.ArgumentParser, optional: bool) -> None:
+    where = p.add_mutually_exclusive_group() if optional else p
+    where.add_argument(
+        "--dashboard", metavar="HOST:PORT",
+        help="serve the page here (default 127.0.0.1:47480; an address other than loopback is logged as a warning)",
+    )
+    if optional:
+        where.add_argument("--no-dashboard", action="store_true", help="run headless, without the page")
+    p.add_argument("--field", default="144in", metavar="LENGTH",
+                   help="side of the square field on the track map, e.g. 144in or 3.66m (default 144in)")
+    p.add_argument("--footprint", default="18in", metavar="LENGTH",
+                   help="side of the robot's square footprint on the track map (default 18in)")
+    p.add_argument("--loop-threshold", type=float, default=50.0, metavar="MS",
+                   help="loops longer than this are highlighted (default 50)")
+
+
+def add_live_commands(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("serve", help="live receiver: listen, recompute, record")
+    p.add_argument("--profile", action="append", metavar="P", help="robot profile TOML (repeat for several robots)")
+    p.add_argument(
+        "--udp",
+        metavar="HOST:PORT",
+        help=f"listen for UDP (default {DEFAULT_UDP_HOST}:{DEFAULT_UDP_PORT} when no other listener is given)",
+    )
+    p.add_argument("--ws", metavar="HOST:PORT", help="listen for WebSocket clients")
+    p.add_argument("--mqtt", metavar="URL", help="MQTT broker, mqtt://HOST[:PORT]: take samples published there")
+    p.add_argument("--forward", action="store_true", help="republish UDP/WebSocket samples and poses to the broker")
+    p.add_argument("--prefix", default=DEFAULT_PREFIX, help=f"MQTT topic prefix (default {DEFAULT_PREFIX})")
+    p.add_argument("--token", metavar="T", help="WebSocket clients must send this token (?token= or header)")
+    p.add_argument("--record", metavar="FILE", help="recording file (default recordings/podwatch-DATE-TIME.jsonl)")
+    _dashboard_options(p, optional=True)
+    p.set_defaults(run=cmd_serve)
+
+    p = sub.add_parser("replay", help="feed a recording through the live pipeline")
+    p.add_argument("recording", help="recording (.jsonl or .jsonl.gz)")
+    p.add_argument("--profile", action="append", metavar="P", help="robot profile TOML (overrides the header)")
+    p.add_argument("--speed", type=float, default=1.0, metavar="X", help="1 = real time, 0 = as fast as possible")
+    p.add_argument("--to", metavar="URL", help="send over the network instead: udp://, ws:// or mqtt://HOST:PORT")
+    p.add_argument("--token", metavar="T", help="token for a ws:// receiver that requires one")
+    p.add_argument("--prefix", default=DEFAULT_PREFIX, help=f"MQTT topic prefix for mqtt:// (default {DEFAULT_PREFIX})")
+    _dashboard_options(p, optional=False)
+    p.set_defaults(run=cmd_replay)
+
+    p = sub.add_parser("demo", help="receiver, dashboard and a simulated robot streaming over UDP on loopback")
+    p.add_argument("--udp", default="127.0.0.1:0", metavar="HOST:PORT",
+                   help="where the receiver listens and the robot sends (default a free port on 127.0.0.1)")
+    p.add_argument("--path", default="figure-eight", choices=PATHS, help="what the robot drives (default figure-eight)")
+    p.add_argument("--rate", type=float, default=100.0, metavar="HZ", help="robot loop rate (default 100)")
+    p.add_argument("--seed", type=int, default=1, metavar="N", help="random seed (default 1)")
+    p.add_argument("--fault", action="append", metavar="NAME",
+                   help="a mistake in the robot code, repeatable (default reversed:right)")
+    p.add_argument("--duration", type=float, metavar="S", help="stop after this many seconds (default: at Ctrl-C)")
+    p.add_argument("--record", metavar="FILE", help="also record the session to FILE")
+    _dashboard_options(p, optional=False)
+    p.set_defaults(run=cmd_demo)

@@ -1,0 +1,50 @@
+"""The ``podwatch`` program: its parser and ``main``.
+
+Every command exits non-zero with one line on bad input; no traceback is
+shown for an error podwatch expected (a PodwatchError), nor for a system
+error (a file, a port) it did not. The commands live in
+offline_commands.py, check_commands.py and live_commands.py.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from typing import Sequence
+
+from receiver import __version__
+from receiver.cli.check_commands import add_check_commands
+from receiver.cli.live_commands import add_live_commands
+from receiver.cli.offline_commands import add_offline_commands
+from receiver.errors import PodwatchError
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="podwatch", description="Check a robot's tracking-wheel odometry against an independent recompute."
+    )
+    parser.add_argument("--version", action="version", version=f"podwatch {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    add_offline_commands(sub)
+    add_check_commands(sub)
+    add_live_commands(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.run(args)
+    except PodwatchError as exc:
+        print(f"podwatch: error: {exc}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        return 130
+    except BrokenPipeError:
+        return 0
+    except OSError as exc:
+        print(f"podwatch: error: {exc.filename or ''}: {exc.strerror}", file=sys.stderr)
+        return 1
+

@@ -1,0 +1,13 @@
+"""Bytes and files: the wire protocol, recordings, the profile's TOML, CSV.
+
+Rules: may use receiver.odometry and receiver.errors; never a socket, a
+thread of its own or the page. Every boundary validates here once and
+raises one-line errors; the layers above assume valid data.
+
+What the layers above use:
+- protocol: ``decode``, ``decode_keeping_raw``, ``decode_message``, ``encode``, ``Sample``, ``Failure``, ``Reason``, ``PoseMessage``
+- profile_toml: ``load_profile``, ``profile_from_table``, ``profile_to_table``, ``write_profile``
+- recording: ``read_recording``, ``RecordingStream``, ``RecordingData``
+- recording_writer: ``RecordingWriter``
+- block_decoder: ``worker_pool`` (large files on two cores); csv_writer: ``write``
+"""
