@@ -15,7 +15,7 @@ from enum import Enum
 
 import numpy as np
 
-from receiver.odometry.robot import METRES_PER_UNIT
+from receiver.odometry.robot import inches
 
 # Back under this share of both thresholds, the next crossing asks again:
 # half, so that an error hovering at a threshold does not ask at every tick.
@@ -62,7 +62,7 @@ class Thresholds:
 
     @classmethod
     def of(cls, position_in: float, heading_deg: float, distance_unit: str) -> Thresholds:
-        return cls(position_in * METRES_PER_UNIT["in"] / METRES_PER_UNIT[distance_unit], math.radians(heading_deg))
+        return cls(position_in * inches(distance_unit), math.radians(heading_deg))
 
 
 @dataclass(frozen=True)

@@ -79,30 +79,28 @@ def run_diagnosis(
 
     ``how`` and ``reason`` open the result, around the source's name: "ran by itself (live): ...".
     """
-    source = station.active
-    profile = source.hub.profiles.get(robot) if robot else None
+    profile = station.profile(robot)
     if profile is None:
         return diagnosis_message("This robot has no profile (give one with --profile): nothing to diagnose."), None
-    cols = source.raw.columns(robot)
+    cols = station.columns(robot)
     if cols is None or not len(cols):
         return diagnosis_message(f"No samples from {robot} yet."), None
     try:
         d = diagnose_recent(cols, profile, float(seconds), robot)
     except PodwatchError as exc:
         return diagnosis_message(f"Cannot diagnose: {exc}"), None
-    return diagnosis_view(d, f"{how} ({source.label})" + (f": {reason}" if reason else "")), d.confidence
+    return diagnosis_view(d, f"{how} ({station.active.label})" + (f": {reason}" if reason else "")), d.confidence
 
 
 def guided_panel(station: Station, run: dict) -> html.Div:
     """The guided check's steps on the samples since Start."""
     if run["key"] != station.key():
         return diagnosis_message("The page shows another source now: press Start guided check again.")
-    source = station.active
     robot = run["robot"]
-    profile = source.hub.profiles.get(robot) if robot else None
+    profile = station.profile(robot)
     if profile is None:
         return diagnosis_message("The guided check needs a robot with a profile.")
-    cols = source.raw.columns(robot, since_rx=run["since_rx"])
+    cols = station.columns(robot, since_rx=run["since_rx"])
     try:
         result = guided_check(clip_from_columns(cols), profile, robot) if cols is not None else None
     except PodwatchError:
@@ -122,16 +120,15 @@ def _status(watch: Watch, settings: Settings) -> str:
 
 def _watch(station: Station, settings: Settings, tick: int, robot: str | None, data: dict | None, answer: dict | None):
     """(watch, ask, status line) after one tick of the watch; watch and ask are None when they stay as they were."""
-    hub = station.active.hub
     # Before the page has chosen a robot (its first refresh), watch the first one heard.
-    robot = robot or next(iter(station.active.raw.robots()), None)
-    profile = hub.profiles.get(robot) if robot else None
+    robot = robot or next(iter(station.heard_robots()), None)
+    profile = station.profile(robot)
     if profile is None:
         return None, None, "" if robot is None else "no profile: nothing to watch"
     watch, key = Watch.from_store(data), station.key()
     since = watch.rx if (watch.robot, watch.key) == (robot, key) else None
     try:
-        rows = hub.history(robot, since_rx=since)
+        rows = station.history(robot, since_rx=since)
     except KeyError:  # the robot is not in this source (yet)
         return None, None, ""
     limits = Thresholds.of(settings.diagnose_position_in, settings.diagnose_heading_deg, profile.distance_unit)
@@ -213,7 +210,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
     )
     def guided_buttons(_start, _finish, robot, run):
         if ctx.triggered_id == ids.GUIDED_START:
-            since = station.active.raw.latest_rx(robot) if robot else None
+            since = station.latest_rx(robot) if robot else None
             return {"robot": robot, "key": station.key(), "since_rx": since, "finished": False}, True, False, False
         if not run:
             return no_update, False, True, True

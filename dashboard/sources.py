@@ -18,7 +18,8 @@ from receiver.errors import UsageError
 from receiver.formats.recording import RecordingData, read_recording
 from receiver.live.hub import Hub
 from receiver.live.raw_history import RawHistory
-from receiver.live.replay import FAST_CHUNK, SOURCE, recorded_samples
+from receiver.live.replay import feed_hub, recorded_samples
+from receiver.odometry.columns import Columns
 from receiver.odometry.robot import Profile
 
 REPLAY_STEP_S = 0.02  # how often a playing replay feeds the hub (wall clock)
@@ -132,11 +133,7 @@ class ReplaySource:
 
     def _feed_until(self, target: float) -> None:
         end = int(np.searchsorted(self.stamps, target, side="right"))
-        for start in range(self._next, end, FAST_CHUNK):
-            stop = min(start + FAST_CHUNK, end)
-            for k in range(start, stop):
-                self.hub.ingest([self.samples[k]], [], float(self.stamps[k]), SOURCE)
-            self.hub.process(float(self.stamps[stop - 1]))
+        feed_hub(self.hub, self.samples, self.stamps, self._next, end)
         self._next = max(self._next, end)
         self._position = target
 
@@ -178,6 +175,27 @@ class Station:
     @property
     def active(self) -> LiveSource | ReplaySource:
         return self.replay if self.replay is not None else self.live
+
+    def profile(self, robot: str | None) -> Profile | None:
+        """The profile the shown source recomputes ``robot`` with; None without one."""
+        return self.active.hub.profiles.get(robot) if robot else None
+
+    def columns(self, robot: str, since_rx: float | None = None) -> Columns | None:
+        """The robot's own samples (counts, pose, IMU) held by the shown source, received after
+        ``since_rx``; None for a robot never heard."""
+        return self.active.raw.columns(robot, since_rx)
+
+    def latest_rx(self, robot: str) -> float | None:
+        """The receive time of the robot's newest sample in the shown source; None before its first."""
+        return self.active.raw.latest_rx(robot)
+
+    def heard_robots(self) -> list[str]:
+        """The robots the shown source has samples of, by name."""
+        return self.active.raw.robots()
+
+    def history(self, robot: str, since_rx: float | None = None) -> dict:
+        """The shown source's result rows of one robot (``Hub.history``); KeyError for an unknown robot."""
+        return self.active.hub.history(robot, since_rx)
 
     def key(self) -> str:
         """Changes whenever the page must redraw everything (another source or a rebuilt hub)."""

@@ -60,7 +60,7 @@ class Refresh:
 
 
 def _unit(station: Station, robot: str | None) -> tuple[str, float | None]:
-    profile = station.active.hub.profiles.get(robot) if robot else None
+    profile = station.profile(robot)
     if profile is None:
         return NO_PROFILE_UNIT, None
     return profile.distance_unit, METRES_PER_UNIT[profile.distance_unit]

@@ -14,12 +14,11 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from receiver.analysis.refine import forward_pair, rolls_along, sideways_wheels
 from receiver.analysis.sample_clip import SampleClip
 from receiver.errors import UsageError
 from receiver.odometry.conventions import imu_heading_change
 from receiver.odometry.kinematics import Kinematics
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, forward_pair, rolls_along, sideways_wheels
 
 # A wheel's total is good to one count: half a count of rounding at each end.
 RESOLUTION_COUNTS = 1.0

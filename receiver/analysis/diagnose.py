@@ -21,7 +21,7 @@ from receiver.odometry.columns import Columns
 from receiver.odometry.conventions import imu_heading_change, rep103_to_reported, reported_to_rep103
 from receiver.odometry.integrate import integrate, wrap_angle
 from receiver.odometry.kinematics import Kinematics
-from receiver.odometry.robot import METRES_PER_UNIT, Profile
+from receiver.odometry.robot import Profile, inches
 
 # The runner-up must leave at least this much more disagreement (RMS, inches)
 # than the best before the clip is said to tell them apart: below it, a real
@@ -107,11 +107,6 @@ class Diagnosis:
 def characteristic_length(profile: Profile) -> float:
     """RMS distance of the wheels from the tracked point: turns heading error into a distance."""
     return float(np.sqrt(np.mean([w.x**2 + w.y**2 for w in profile.wheels])))
-
-
-def _inches(profile: Profile) -> float:
-    """One inch in the profile's distance unit."""
-    return METRES_PER_UNIT["in"] / METRES_PER_UNIT[profile.distance_unit]
 
 
 def _solve_stack(hyps: tuple[Hypothesis, ...], with_imu: bool) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
@@ -254,7 +249,7 @@ def diagnose_clip(clip: SampleClip, profile: Profile, robot: str | None = None, 
     seen = np.where(clip.anchor[:, None], 0.0, deltas[0])
     fit = refine(clip, hyps[best_index], reported[best_index], method, length)
 
-    inch = _inches(profile)
+    inch = inches(profile.distance_unit)
     margin = ranking[1].score - ranking[0].score if len(ranking) > 1 else float("inf")
     notes = []
     if margin < MARGIN_FLOOR_IN * inch:

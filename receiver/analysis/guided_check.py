@@ -23,10 +23,10 @@ from receiver.odometry.robot import (
     HEADING_POSITIVE,
     HEADING_UNITS,
     HEADING_ZEROS,
-    METRES_PER_UNIT,
     Y_AXES,
     Profile,
     Reported,
+    inches,
 )
 
 MOVES = ("forward", "left", "turn")
@@ -101,10 +101,6 @@ class GuidedResult:
         }
 
 
-def _inch(profile: Profile) -> float:
-    return METRES_PER_UNIT["in"] / METRES_PER_UNIT[profile.distance_unit]
-
-
 def _runs(moving: np.ndarray, t: np.ndarray) -> list[tuple[int, int]]:
     """(first, last) index of each run of moving samples, pauses under MERGE_GAP_S bridged."""
     edges = np.diff(np.concatenate([[0], moving.astype(np.int8), [0]]))
@@ -130,7 +126,7 @@ def find_moves(clip: SampleClip, profile: Profile) -> tuple[dict[str, Move], int
     dt = float(np.median(np.diff(clip.t))) if len(clip) > 1 else 1.0
     window = max(1, int(round(SMOOTH_S / dt)))
     activity = np.convolve(np.abs(travel).max(axis=1), np.ones(window) / window, mode="same") / dt
-    runs = _runs(activity > MOVING_SPEED_IN_S * _inch(profile), clip.t)
+    runs = _runs(activity > MOVING_SPEED_IN_S * inches(profile.distance_unit), clip.t)
     patterns = np.abs(kin.matrix.T)  # (3 moves, n wheels), per unit move
     found: dict[str, Move] = {}
     count = 0
@@ -141,7 +137,7 @@ def find_moves(clip: SampleClip, profile: Profile) -> tuple[dict[str, Move], int
         a, b = bounds[k] + (k > 0), bounds[k + 1]
         net = travel[a : b + 1].sum(axis=0)
         size = np.abs(net)
-        if size.max() < MIN_MOVE_IN * _inch(profile):
+        if size.max() < MIN_MOVE_IN * inches(profile.distance_unit):
             continue
         count += 1
         likeness = patterns @ size / (np.linalg.norm(patterns, axis=1) * np.linalg.norm(size))
@@ -252,7 +248,7 @@ def guided_check(clip: SampleClip, profile: Profile, robot: str | None = None) -
     moves, extra = find_moves(clip, profile)
     unit = profile.distance_unit
     checks: list[Check] = []
-    minimum = {"forward": MIN_PUSH_IN * _inch(profile), "left": MIN_PUSH_IN * _inch(profile), "turn": math.radians(MIN_TURN_DEG)}
+    minimum = {"forward": MIN_PUSH_IN * inches(profile.distance_unit), "left": MIN_PUSH_IN * inches(profile.distance_unit), "turn": math.radians(MIN_TURN_DEG)}
     for kind in MOVES:
         if kind not in moves:
             checks.append(Check(kind, "move", False, f"not found: {INSTRUCTIONS[kind]}"))

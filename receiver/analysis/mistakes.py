@@ -9,17 +9,13 @@ Pure: profiles in, hypotheses out.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, fields
 from functools import lru_cache
 from itertools import combinations
 
 from receiver.odometry.faults import Faults, robot_code_profile
-from receiver.odometry.robot import Profile, Reported, Wheel
+from receiver.odometry.robot import Profile, Reported, Wheel, parallel, rolls_mostly_forward
 
-# Two wheels roll the same way when their rolling directions are within this
-# (modulo a half turn): a swap between them is a plausible wiring mistake.
-_PARALLEL_DEG = 1.0
 _CONVENTION_FAULTS = {
     "heading_unit": "heading-unit",
     "heading_positive": "heading-direction",
@@ -55,25 +51,15 @@ class Hypothesis:
         return len(self.specs)
 
 
-def _rolls_forward(wheel: Wheel) -> bool:
-    """The same test robot_code_profile uses to pick which offset a sign mistake flips."""
-    phi = math.radians(wheel.angle)
-    return abs(math.cos(phi)) >= abs(math.sin(phi))
-
-
-def _parallel(a: Wheel, b: Wheel) -> bool:
-    return abs((a.angle - b.angle + 90.0) % 180.0 - 90.0) < _PARALLEL_DEG
-
-
 def single_mistakes(profile: Profile) -> list[tuple[str, Faults]]:
     """Every single mistake that changes what the robot code computes, as (spec, faults)."""
     wheels = profile.wheels
     singles = [(f"reversed:{w.name}", Faults(reversed=(w.name,))) for w in wheels]
     for a, b in combinations(wheels, 2):
-        if _parallel(a, b):
+        if parallel(a, b):  # a swap of two wheels rolling the same way is a plausible wiring mistake
             singles.append((f"swapped:{a.name},{b.name}", Faults(swapped=((a.name, b.name),))))
     for w in wheels:
-        if (w.y if _rolls_forward(w) else w.x) != 0.0:  # flipping a zero offset changes nothing
+        if (w.y if rolls_mostly_forward(w) else w.x) != 0.0:  # flipping a zero offset changes nothing
             singles.append((f"offset-sign:{w.name}", Faults(offset_sign=(w.name,))))
     singles += [(spec, Faults(conventions=(key,))) for key, spec in _CONVENTION_FAULTS.items()]
     return singles
@@ -117,7 +103,7 @@ def _wheel_words(spec: str, profile: Profile, robot: Profile) -> tuple[str, str]
         return f"reads the {a} and {b} encoders the other way round (swapped)", "does not"
     declared = profile.wheels[index[names]]
     used = robot.wheels[index[names]]
-    key, offset = ("y", "lateral") if _rolls_forward(declared) else ("x", "forward")
+    key, offset = ("y", "lateral") if rolls_mostly_forward(declared) else ("x", "forward")
     return (
         f"uses {key} = {_length(getattr(used, key), profile)} for the {names} wheel's {offset} offset",
         f"says {_length(getattr(declared, key), profile)}",

@@ -18,10 +18,8 @@ from receiver.analysis.sample_clip import SampleClip
 from receiver.odometry.conventions import imu_heading_change
 from receiver.odometry.integrate import integrate, wrap_angle
 from receiver.odometry.kinematics import Kinematics
-from receiver.odometry.robot import Profile, Wheel
+from receiver.odometry.robot import Profile, forward_pair, sideways_wheels
 
-# A wheel within this of forward (or sideways) counts as rolling that way.
-_AXIS_TOLERANCE_DEG = 1.0
 # A constant is "determined" by a clip when its standard error is below this
 # fraction of its size (or of the robot's size, for an offset near zero).
 DETERMINED_REL = 0.01
@@ -71,21 +69,6 @@ class Fit:
     score_before: float
     score_after: float
     profile: Profile  # the hypothesis's profile with the significant fitted values in it
-
-
-def rolls_along(wheel: Wheel, axis_deg: float) -> bool:
-    """True when the wheel rolls along the body axis at axis_deg (either way)."""
-    return abs((wheel.angle - axis_deg + 90.0) % 180.0 - 90.0) < _AXIS_TOLERANCE_DEG
-
-
-def forward_pair(profile: Profile) -> tuple[int, int] | None:
-    """Indices of the two forward-rolling wheels, when there are exactly two."""
-    found = [i for i, w in enumerate(profile.wheels) if rolls_along(w, 0.0)]
-    return (found[0], found[1]) if len(found) == 2 else None
-
-
-def sideways_wheels(profile: Profile) -> list[int]:
-    return [i for i, w in enumerate(profile.wheels) if rolls_along(w, 90.0)]
 
 
 class _Model:

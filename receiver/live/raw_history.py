@@ -15,7 +15,7 @@ import threading
 import numpy as np
 
 from receiver.formats.protocol import Sample
-from receiver.live.ring_buffer import RingBuffer
+from receiver.live.ring_buffer import PendingRows, RingBuffer
 from receiver.odometry.columns import Columns
 
 # Long enough for a guided check done at a walking pace and for the longest
@@ -23,17 +23,14 @@ from receiver.odometry.columns import Columns
 # about 15 MB (four wheels: 13 numbers a row).
 DEFAULT_RAW_WINDOW_S = 180.0
 DEFAULT_RAW_MAX_ROWS = 180_000
-# Rows wait in flat lists of numbers and reach the ring in bulk (at this many,
-# or when read): one numpy write per column costs more than a row of appends.
-# Flat lists, not a tuple or a Sample per row, keep them out of the garbage
-# collector's generations (the same reason as in session.py).
 _FLUSH_ROWS = 256
-_FLOATS = ("rx", "t", "pose", "imu", "loop")  # pose 3 wide
-_FLOATS_PER_ROW = 7
+_FLOAT_COLUMNS = (("rx", None), ("t", None), ("pose", 3), ("imu", None), ("loop", None))
 _NAN3 = (math.nan, math.nan, math.nan)
 
 
 class _RobotRaw:
+    """One robot's ring of raw samples, and the rows waiting to reach it."""
+
     def __init__(self, n_wheels: int, window_s: float, max_rows: int) -> None:
         self.n_wheels = n_wheels
         self.ring = RingBuffer(
@@ -41,18 +38,9 @@ class _RobotRaw:
              "pose": (float, 3), "imu": (float, None), "loop": (float, None), "reset": (bool, None)},
             window_s=window_s, max_rows=max_rows,
         )
-        self.floats: list[float] = []  # pending rows, as _FLOATS
-        self.ints: list[int] = []  # their seq, reset, then the counts
-
-    def flush(self) -> None:
-        if not self.floats:
-            return
-        f = np.array(self.floats, dtype=float).reshape(-1, _FLOATS_PER_ROW)
-        i = np.array(self.ints, dtype=np.int64).reshape(-1, 2 + self.n_wheels)
-        self.ring.append(rx=f[:, 0], t=f[:, 1], pose=f[:, 2:5], imu=f[:, 5], loop=f[:, 6],
-                         seq=i[:, 0], reset=i[:, 1].astype(bool), ticks=i[:, 2:])
-        self.floats.clear()
-        self.ints.clear()
+        # Each row: its floats as _FLOAT_COLUMNS, then seq, reset and the counts as integers.
+        self.pending = PendingRows(self.ring, _FLOAT_COLUMNS, (("seq", None), ("reset", None), ("ticks", n_wheels)),
+                                   _FLUSH_ROWS)
 
 
 class RawHistory:
@@ -78,16 +66,17 @@ class RawHistory:
                     # A new robot, or one the hub now expects another number
                     # of counts from: its old rows cannot share columns.
                     raw = robots[s.robot] = _RobotRaw(len(s.ticks), self.window_s, self.max_rows)
-                # the row, as _FLOATS and then seq, reset and the counts (inline: this runs per sample)
+                # the row, as _FLOAT_COLUMNS and then seq, reset and the counts (inline: this runs per sample)
                 pose = s.pose if s.pose is not None else _NAN3
-                floats = raw.floats
-                floats += (
+                pending = raw.pending
+                pending.floats += (
                     nan if s.rx is None else s.rx, s.t, pose[0], pose[1], pose[2],
                     nan if s.imu is None else s.imu, nan if s.loop is None else s.loop,
                 )
-                raw.ints += (s.seq, s.reset, *s.ticks)
-                if len(floats) >= _FLUSH_ROWS * _FLOATS_PER_ROW:
-                    raw.flush()
+                ints = pending.ints
+                ints += (s.seq, s.reset, *s.ticks)
+                if len(ints) >= pending.limit:
+                    pending.flush()
 
     def robots(self) -> list[str]:
         with self._lock:
@@ -99,7 +88,7 @@ class RawHistory:
             raw = self._robots.get(robot)
             if raw is None:
                 return None
-            raw.flush()
+            raw.pending.flush()
             newest = raw.ring.newest()
             return None if newest is None else float(newest["rx"])
 
@@ -110,7 +99,7 @@ class RawHistory:
             raw = self._robots.get(robot)
             if raw is None:
                 return None
-            raw.flush()
+            raw.pending.flush()
             held = raw.ring.cut(since_rx)
         c = held.rows()  # after the lock: the receive loop's listener call never waits for this copy
         return Columns(seq=c["seq"], t=c["t"], ticks=c["ticks"], pose=c["pose"], imu=c["imu"], loop=c["loop"],

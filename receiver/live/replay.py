@@ -99,11 +99,19 @@ def replay_into_hub(
         if end == start:
             sleep(wait_s)
             continue
-        for k in range(start, end):
-            hub.ingest([samples[k]], [], float(stamps[k]), SOURCE)
-        hub.process(float(stamps[end - 1]))
+        feed_hub(hub, samples, stamps, start, end)
         start = end
     return len(samples)
+
+
+def feed_hub(hub: Hub, samples: list[Sample], stamps: np.ndarray, start: int, end: int) -> None:
+    """Feed ``samples[start:end]`` to the hub as the transports would: each
+    ingested with its timestamp, processed FAST_CHUNK at a time."""
+    for first in range(start, end, FAST_CHUNK):
+        last = min(first + FAST_CHUNK, end)
+        for k in range(first, last):
+            hub.ingest([samples[k]], [], float(stamps[k]), SOURCE)
+        hub.process(float(stamps[last - 1]))
 
 
 async def replay_to(

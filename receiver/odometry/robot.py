@@ -90,6 +90,17 @@ def rolls_mostly_forward(wheel: Wheel) -> bool:
     return abs(math.cos(phi)) >= abs(math.sin(phi))
 
 
+def forward_pair(profile: Profile) -> tuple[int, int] | None:
+    """Indices of the two forward-rolling wheels, when there are exactly two."""
+    found = [i for i, w in enumerate(profile.wheels) if rolls_along(w, 0.0)]
+    return (found[0], found[1]) if len(found) == 2 else None
+
+
+def sideways_wheels(profile: Profile) -> list[int]:
+    """Indices of the wheels that roll sideways."""
+    return [i for i, w in enumerate(profile.wheels) if rolls_along(w, 90.0)]
+
+
 def parallel(a: Wheel, b: Wheel) -> bool:
     """True when two wheels roll along the same line (either way)."""
     return rolls_along(a, b.angle)

@@ -24,7 +24,7 @@ from receiver.odometry.faults import Faults, robot_code_profile
 from receiver.odometry.integrate import integrate
 from receiver.odometry.kinematics import Kinematics
 from receiver.odometry.recompute import Tracker
-from receiver.odometry.robot import METRES_PER_UNIT, Profile
+from receiver.odometry.robot import Profile, inches
 from receiver.sim.motion_paths import PATHS, Motion, make_path
 
 SUBSTEPS = 8  # exact arc steps of the true motion per robot loop
@@ -181,7 +181,7 @@ def simulate(
     tau, loop_s = tau_all[:n], periods[:n]
 
     kinematics = Kinematics(profile)
-    scale = METRES_PER_UNIT["in"] / METRES_PER_UNIT[profile.distance_unit]
+    scale = inches(profile.distance_unit)
     motion = make_path(path, shape)
     truth, travel = true_motion(motion, tau, scale, kinematics)
     travel = travel * (1.0 + faults.slip * slip.standard_normal(travel.shape))
