@@ -13,7 +13,7 @@ from receiver.cli import main
 from receiver.cli.program import build_parser
 from receiver.live.serve import ServeConfig
 from tests.conftest import FIXTURES
-from tests.transports.harness import handled, live_receiver, wait_until
+from tests.live.harness import handled, live_receiver, wait_until
 
 ROOT = Path(__file__).resolve().parents[1]
 README = (ROOT / "README.md").read_text()

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import json
 import re
-from pathlib import Path
 
 import pytest
 
@@ -22,8 +21,9 @@ from dashboard.sources import LiveSource, ReplaySource, Station
 from receiver.formats.recording import read_recording
 from receiver.live.hub import Hub
 from receiver.live.session import LinkState, RobotSnapshot
+from tests.conftest import FIXTURES
 
-REVERSED = Path(__file__).resolve().parents[2] / "replay_fixtures" / "practice-bot-figure-eight-reversed-right.jsonl.gz"
+REVERSED = FIXTURES / "practice-bot-figure-eight-reversed-right.jsonl.gz"
 
 
 def call(app, output: str, values: dict[str, object], changed: list[str]) -> dict:

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 import pytest
 
@@ -19,8 +17,8 @@ from receiver.formats.recording import read_recording
 from receiver.odometry.columns import columns_from_samples
 from receiver.odometry.faults import parse_faults, robot_code_profile
 from receiver.sim.simulate import simulate
+from tests.conftest import FIXTURES
 
-FIXTURES = Path(__file__).resolve().parents[2] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")
 REVERSED = FIXTURES / "practice-bot-figure-eight-reversed-right.jsonl.gz"
 GUIDED = FIXTURES / "practice-bot-guided.jsonl.gz"

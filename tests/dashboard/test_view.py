@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-
 import numpy as np
 import pytest
 
@@ -14,9 +12,9 @@ from dashboard.sources import ReplaySource, Station
 from receiver.errors import PodwatchError, UsageError
 from receiver.formats.recording import read_recording
 from receiver.live.session import LinkState, RobotSnapshot
+from tests.conftest import FIXTURES
 from tests.dashboard.test_figures import values
 
-FIXTURES = Path(__file__).resolve().parents[2] / "replay_fixtures"
 REVERSED = FIXTURES / "practice-bot-figure-eight-reversed-right.jsonl.gz"
 
 

@@ -12,7 +12,7 @@ import pytest
 
 from receiver.formats.recording import read_recording
 from receiver.live.serve import ServeConfig
-from tests.transports.harness import handled, live_receiver, wait_until
+from tests.live.harness import handled, live_receiver, wait_until
 
 SENDERS = Path(__file__).resolve().parents[2] / "receiver" / "senders"
 N = 300

@@ -1,4 +1,4 @@
-"""Tests for receiver/simulate.py and receiver/paths.py: the simulated robot."""
+"""Tests for receiver/sim/simulate.py and receiver/sim/motion_paths.py: the simulated robot."""
 
 from __future__ import annotations
 
@@ -20,8 +20,8 @@ from receiver.odometry.integrate import wrap_angle
 from receiver.odometry.recompute import Result, Tracker
 from receiver.sim.motion_paths import FIELD_SIZE_IN, PATHS
 from receiver.sim.simulate import Run, simulate
+from tests.conftest import FIXTURES
 
-FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")  # inches, radians, counter-clockwise
 METRIC = load_profile(FIXTURES / "practice-bot-metric.toml")  # mm, clockwise degrees, right encoder reversed
 MM_PER_IN = 25.4  # exact by definition

@@ -16,7 +16,7 @@ from receiver.formats.protocol import PoseMessage, encode
 from receiver.live.serve import ServeConfig
 from receiver.live.transports.mqtt import batch_payloads, parse_mqtt_url
 from receiver.sim.simulate import simulate
-from tests.transports.harness import handled, live_receiver, wait_until
+from tests.live.harness import handled, live_receiver, wait_until
 
 
 def test_batches_respect_the_wire_limits():

@@ -20,9 +20,9 @@ from receiver.live.hub import DEFAULT_MAX_ROBOTS
 from receiver.live.serve import ServeConfig
 from receiver.odometry.columns import columns_from_samples
 from receiver.odometry.recompute import Tracker
+from tests.live.harness import handled, live_receiver, wait_until
 from tests.malformed import DECODER_CASES
 from tests.synthetic import constant_twist_messages
-from tests.transports.harness import handled, live_receiver, wait_until
 
 UDP_PAYLOAD_LIMIT = 65507  # IPv4: 65535 minus the IP and UDP headers; larger cannot be sent
 

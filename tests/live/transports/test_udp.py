@@ -15,7 +15,7 @@ from receiver.live.transports.udp import MAX_DATAGRAMS_PER_PASS, UdpReceiver
 from receiver.odometry.columns import columns_from_samples
 from receiver.odometry.recompute import Tracker
 from receiver.sim.simulate import simulate
-from tests.transports.harness import wait_until
+from tests.live.harness import wait_until
 
 
 def test_the_receive_loop_recomputes_a_backlog_and_a_trickle_without_a_pump(practice_profile):

@@ -1,4 +1,4 @@
-"""Tests for receiver/calibrate.py: spin and push tests on the simulated robot with wheel slip.
+"""Tests for receiver/analysis/calibrate.py: spin and push tests on the simulated robot with wheel slip.
 
 The truth is the simulator's geometry (replay_fixtures/practice-bot.toml:
 track width 12.5 in, back wheel 5.5 in behind, 1.378 in wheels on 8192
@@ -11,7 +11,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -23,8 +22,8 @@ from receiver.formats.profile_toml import load_profile
 from receiver.odometry.columns import columns_from_samples
 from receiver.odometry.faults import parse_faults
 from receiver.sim.simulate import simulate
+from tests.conftest import FIXTURES
 
-FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")
 W = PRACTICE.wheels
 GEOMETRY_OFF = PRACTICE.with_wheels((replace(W[0], y=6.0), replace(W[1], y=-6.1), replace(W[2], x=-5.0)))
@@ -33,7 +32,7 @@ DIAMETERS_OFF = PRACTICE.with_wheels(
 )
 SLIP = 0.02
 SEEDS = range(6)
-# The spin path turns once in 4.19 s and rests 0.5 s (receiver/paths.py): three turns end at rest by 13.8 s.
+# The spin path turns once in 4.19 s and rests 0.5 s (receiver/sim/motion_paths.py): three turns end at rest by 13.8 s.
 THREE_TURNS_S = 13.8
 
 

@@ -8,7 +8,7 @@ from receiver.live.demo import SimulatedRobot, demo_profile
 from receiver.live.serve import ServeConfig
 from receiver.odometry.counts import SampleKind
 from receiver.odometry.faults import parse_faults
-from tests.transports.harness import live_receiver, wait_until
+from tests.live.harness import live_receiver, wait_until
 
 
 def test_the_packaged_profile_is_the_fixture_profile(practice_profile):

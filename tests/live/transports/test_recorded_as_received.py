@@ -17,8 +17,8 @@ from receiver.formats.recording import read_recording
 from receiver.live.serve import ServeConfig
 from receiver.live.transports.send import open_sender
 from receiver.odometry.columns import COLUMN_NAMES
+from tests.live.harness import handled, listen_on, live_receiver, sender_url, wait_until
 from tests.synthetic import constant_twist_messages
-from tests.transports.harness import handled, listen_on, live_receiver, sender_url, wait_until
 
 TEAM_FIELDS = ("motor_power", "debug")
 

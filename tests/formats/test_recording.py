@@ -1,4 +1,4 @@
-"""Tests for receiver/recording.py: the writer, and the reader on what the writer leaves behind."""
+"""Tests for receiver/formats/recording_writer.py and recording.py: the writer, and the reader on what the writer leaves behind."""
 
 from __future__ import annotations
 
@@ -15,8 +15,8 @@ from receiver.formats.protocol import Sample, encode
 from receiver.formats.recording import GZIP_MAGIC, read_recording
 from receiver.formats.recording_writer import FLUSH_INTERVAL_S, RecordingWriter
 from receiver.odometry.columns import COLUMN_NAMES
+from tests.conftest import FIXTURES
 
-FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PROFILE = load_profile(FIXTURES / "practice-bot.toml")
 CREATED = "2025-01-01T12:00:00+00:00"
 RX0 = 1735732800.0

@@ -1,13 +1,12 @@
-"""Tests for receiver/diagnose.py, mistakes.py, refine.py and clip.py: naming the convention mistake.
+"""Tests for receiver/analysis/diagnose.py, mistakes.py, refine.py and sample_clip.py: naming the convention mistake.
 
 The reference for every verdict is the mistake injected into the simulated
-robot code (receiver/simulate.py), with wheel slip and packet faults on top.
+robot code (receiver/sim/simulate.py), with wheel slip and packet faults on top.
 """
 
 from __future__ import annotations
 
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -20,8 +19,8 @@ from receiver.formats.profile_toml import load_profile
 from receiver.odometry.columns import Columns, columns_from_samples, concat_columns
 from receiver.odometry.faults import parse_faults, robot_code_profile
 from receiver.sim.simulate import simulate
+from tests.conftest import FIXTURES
 
-FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")
 METRIC = load_profile(FIXTURES / "practice-bot-metric.toml")
 # Realistic noise: 2 % wheel slip per loop, and a lossy, reordering network.

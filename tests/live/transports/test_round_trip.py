@@ -16,7 +16,7 @@ from receiver.live.serve import ServeConfig
 from receiver.odometry.integrate import wrap_angle
 from receiver.sim.simulate import simulate
 from tests.conftest import FIXTURES
-from tests.transports.harness import handled, listen_on, live_receiver, sender_url, wait_until
+from tests.live.harness import handled, listen_on, live_receiver, sender_url, wait_until
 
 
 @pytest.mark.parametrize("transport", ["udp", "ws", "mqtt"])

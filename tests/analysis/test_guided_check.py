@@ -1,4 +1,4 @@
-"""Tests for receiver/guided.py: the hand-push check (forward, left, counter-clockwise turn).
+"""Tests for receiver/analysis/guided_check.py: the hand-push check (forward, left, counter-clockwise turn).
 
 Directions are REP 103's: +x forward, +y left, heading counter-clockwise
 positive. A wheel's expected direction comes from the simulator's true
@@ -9,7 +9,6 @@ simulated robot code (for the reported pose).
 from __future__ import annotations
 
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -21,8 +20,8 @@ from receiver.formats.recording import read_recording
 from receiver.odometry.columns import columns_from_samples
 from receiver.odometry.faults import parse_faults, robot_code_profile
 from receiver.sim.simulate import simulate
+from tests.conftest import FIXTURES
 
-FIXTURES = Path(__file__).resolve().parents[1] / "replay_fixtures"
 PRACTICE = load_profile(FIXTURES / "practice-bot.toml")
 METRIC = load_profile(FIXTURES / "practice-bot-metric.toml")
 
@@ -36,7 +35,7 @@ def test_clean_fixture_passes_every_step() -> None:
     data = read_recording(FIXTURES / "practice-bot-guided.jsonl.gz")
     result = guided_check(clip_from_columns(data.robots["practice-bot"]), PRACTICE)
     assert result.passed and result.flags == []
-    # The fixture's path: 18 in forward, 18 in left, 120 degrees counter-clockwise (receiver/paths.py).
+    # The fixture's path: 18 in forward, 18 in left, 120 degrees counter-clockwise (receiver/sim/motion_paths.py).
     assert result.moves["forward"].amount == pytest.approx(18.0, rel=0.01)
     assert result.moves["left"].amount == pytest.approx(18.0, rel=0.01)
     assert np.degrees(result.moves["turn"].amount) == pytest.approx(120.0, rel=0.01)
