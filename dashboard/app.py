@@ -18,6 +18,9 @@ ASSETS = Path(__file__).resolve().parent / "assets"
 
 
 def create_app(station: Station, settings: Settings = Settings()) -> Dash:
+    """A new Dash app showing ``station``: the layout, the views' callbacks and the
+    diagnosis panels. Serve its ``.server`` (``server.start_dashboard`` does).
+    """
     app = Dash(
         __name__,
         title="podwatch",

@@ -28,6 +28,8 @@ STALL_TICKS = 20
 
 
 class WatchState(Enum):
+    """Where a watch stands between ticks; it moves only through TRANSITIONS."""
+
     ARMED = "armed"  # under the thresholds: the next crossing asks for a run
     ASKED = "asked"  # a run asked for, its answer not back yet
     UNSURE = "unsure"  # answered "not enough motion": asks again while the disagreement stays up
@@ -35,6 +37,8 @@ class WatchState(Enum):
 
 
 class WatchEvent(Enum):
+    """What a tick saw or heard; each moves the WatchState through TRANSITIONS."""
+
     PAST = "past"  # the disagreement passed a threshold
     DOWN = "down"  # back under REARM_SHARE of both thresholds
     SURE = "sure"  # the run answered with a verdict
@@ -57,11 +61,16 @@ TRANSITIONS: dict[tuple[WatchState, WatchEvent], WatchState] = {
 
 @dataclass(frozen=True)
 class Thresholds:
+    """When the page diagnoses by itself: position in the profile's distance unit,
+    heading in radians.
+    """
+
     position: float  # the profile's distance unit
     heading_rad: float
 
     @classmethod
     def of(cls, position_in: float, heading_deg: float, distance_unit: str) -> Thresholds:
+        """Thresholds from inches and degrees (the settings), for a profile in ``distance_unit``."""
         return cls(position_in * inches(distance_unit), math.radians(heading_deg))
 
 
@@ -103,10 +112,12 @@ class Watch:
     rx: float | None = None  # rows up to this rx have been judged
 
     def to_store(self) -> dict:
+        """The watch as plain JSON for a dcc.Store; ``from_store`` reads it back."""
         return {**asdict(self), "state": self.state.value}
 
     @classmethod
     def from_store(cls, data: dict | None) -> Watch:
+        """The watch a dcc.Store holds (``to_store``'s output); a new, armed one when empty."""
         if not data:
             return cls()
         return cls(**{**data, "state": WatchState(data["state"])})

@@ -29,6 +29,9 @@ SLOW_TEXTS_S = 1.0
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
+    """Wire ``app``'s views, readouts, replay bar and recording opener to ``station``; call
+    once, from ``create_app``.
+    """
     view_outputs = [Output(cid, prop) for _, cid in VIEWS for prop in ("figure", "extendData")]
     app.clientside_callback(
         WATCHDOG, Output(ids.REQUEST, "data"), Output(ids.REPLAY_REQUEST, "data"), Input(ids.TICK, "n_intervals"),
@@ -54,25 +57,35 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         State(ids.ROBOT, "options"),
     )
     def update_views(request, robot, window_s, cursor, options):
-        r = view.refresh(station, settings, robot, float(window_s), cursor)
-        r.cursor["tick"] = (request or {}).get("tick")
-        fresh = [{"label": name, "value": name} for name in r.robots]
-        views = [v for name, _ in VIEWS for v in (r.figures.get(name, no_update), r.extensions.get(name, no_update))]
-        snap = r.snapshots.get(robot)
+        refreshed = view.refresh(station, settings, robot, float(window_s), cursor)
+        refreshed.cursor["tick"] = (request or {}).get("tick")
+        fresh = [{"label": name, "value": name} for name in refreshed.robots]
+        views = [
+            v
+            for name, _ in VIEWS
+            for v in (refreshed.figures.get(name, no_update), refreshed.extensions.get(name, no_update))
+        ]
+        snap = refreshed.snapshots.get(robot)
         jitter_s = snap.jitter_s if snap is not None else float("nan")
-        texts = readout_texts.disagreement_values(r.disagreement, r.unit) + readout_texts.loop_values(r.loop, jitter_s)
+        texts = readout_texts.disagreement_values(refreshed.disagreement, refreshed.unit)
+        texts += readout_texts.loop_values(refreshed.loop, jitter_s)
         paint = {"text": dict(zip(READOUT_IDS, texts)), "html": {}}
         slow_at = (cursor or {}).get("slow_at", -math.inf)
-        if r.figures or not 0.0 <= r.now - slow_at < SLOW_TEXTS_S:
-            r.cursor["slow_at"] = r.now
-            paint["text"][ids.STATUS] = r.status
-            paint["html"][ids.LINK_TABLE] = readout_texts.link_table(r.snapshots, r.now, robot, r.unattributed)
+        if refreshed.figures or not 0.0 <= refreshed.now - slow_at < SLOW_TEXTS_S:
+            refreshed.cursor["slow_at"] = refreshed.now
+            paint["text"][ids.STATUS] = refreshed.status
+            paint["html"][ids.LINK_TABLE] = readout_texts.link_table(
+                refreshed.snapshots, refreshed.now, robot, refreshed.unattributed
+            )
         else:
-            r.cursor["slow_at"] = slow_at
-        r.cursor["paint"] = paint
-        histogram = no_update if r.histogram is None else r.histogram
-        robot_out = (no_update if fresh == options else fresh), (no_update if r.robot == robot else r.robot)
-        return (*views, histogram, r.cursor, *robot_out)
+            refreshed.cursor["slow_at"] = slow_at
+        refreshed.cursor["paint"] = paint
+        histogram = no_update if refreshed.histogram is None else refreshed.histogram
+        robot_out = (
+            no_update if fresh == options else fresh,
+            no_update if refreshed.robot == robot else refreshed.robot,
+        )
+        return (*views, histogram, refreshed.cursor, *robot_out)
 
     @app.callback(
         Output(ids.TICK, "disabled"),
@@ -104,10 +117,9 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         if replay is None:
             new = (no_update, no_update, "", "replay-bar hidden", "button hidden")
         else:
-            # Every control that triggered this call, in the order the page saw
-            # them: a click that comes while a tick's call of this callback still
-            # waits in the page is merged into that call, and ctx.triggered_id
-            # names only the first trigger (the tick), so the click was lost.
+            # Every control that triggered this call, in the order the page saw them:
+            # the page merges a click into a tick's call still waiting, and
+            # ctx.triggered_id would name only the first trigger.
             for control in triggered_ids():
                 if control == ids.PLAY:
                     replay.play()
@@ -121,11 +133,9 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             text = f"{replay.position_s:.1f} s of {replay.duration_s:.1f} s, {state} at {replay.speed:g}\u00d7"
             back = "button" if station.live is not None else "button hidden"
             new = (round(replay.position_s, 1), round(replay.duration_s, 1), text, "replay-bar", back)
-        # Only what changed. The slider above all: an answer that wrote the
-        # position it already showed could land between the person's release
-        # of the slider and the page's call for it, put the old value back
-        # and the seek went to where the replay already was. (While playing
-        # the slider moves with every answer, and that window stays open.)
+        # Only what changed, the slider above all: rewriting the position it
+        # already shows could land between a release of the slider and the
+        # page's call for it, and undo the seek.
         return tuple(no_update if value == old else value for value, old in zip(new, (scrub, *shown)))
 
     @app.callback(

@@ -3,7 +3,7 @@
 Owns the HTML pieces of the two panels: the verdict, confidence, ranked
 explanations and suggested profile change of a ``Diagnosis``; the three
 steps of a ``GuidedResult`` with pass or fail each. The words themselves
-come from receiver/check_words.py, shared with ``podwatch diagnose``.
+come from receiver/analysis/wording.py, shared with ``podwatch diagnose``.
 No clock, no I/O, no Dash callbacks.
 """
 
@@ -40,17 +40,19 @@ def _changes(changes: list[str]) -> html.Pre:
     return html.Pre("\n".join(change_lines(changes)), className="profile-change")
 
 
-def diagnosis_view(d: Diagnosis, why: str) -> html.Div:
+def diagnosis_view(diagnosis: Diagnosis, why: str) -> html.Div:
     """The panel's result: why it ran, the clip, verdict, confidence, explanations, suggested change, notes."""
-    unit = d.profile.distance_unit
+    unit = diagnosis.profile.distance_unit
     rows = [
         html.Tr([
             html.Td(f"{k}"),
-            html.Td([verdict(r.hypothesis, d.profile), html.Div(explanation_id(r), className="hypothesis-id")]),
-            # The CLI's table formats (cli_diagnose.py).
-            html.Td(f"{r.position_rms:.3f} {unit}"), html.Td(f"{math.degrees(r.heading_rms):.2f} deg"), html.Td(f"{r.score:.3f}"),
+            html.Td([verdict(ranked.hypothesis, diagnosis.profile),
+                     html.Div(explanation_id(ranked), className="hypothesis-id")]),
+            # The CLI's table formats (cli/check_commands.py).
+            html.Td(f"{ranked.position_rms:.3f} {unit}"), html.Td(f"{math.degrees(ranked.heading_rms):.2f} deg"),
+            html.Td(f"{ranked.score:.3f}"),
         ])
-        for k, r in enumerate(d.ranking[:PAGE_HYPOTHESES], 1)
+        for k, ranked in enumerate(diagnosis.ranking[:PAGE_HYPOTHESES], 1)
     ]
     table = html.Table(className="explanations", children=[
         html.Thead(html.Tr([html.Th(h) for h in ("#", "explanation (as a fault)", "position RMS", "heading RMS",
@@ -58,12 +60,13 @@ def diagnosis_view(d: Diagnosis, why: str) -> html.Div:
         html.Tbody(rows),
     ])
     return html.Div(className="diagnosis", children=[
-        html.Div(f"{why} \u00b7 {clip_line(d)}", className="diagnosis-why"),
-        html.Div(className="verdict", children=[html.Span("verdict: ", className="verdict-label"), d.verdict]),
-        html.Div(className=_confidence_class(d.confidence), children=f"confidence: {confidence_words(d)}"),
+        html.Div(f"{why} \u00b7 {clip_line(diagnosis)}", className="diagnosis-why"),
+        html.Div(className="verdict", children=[html.Span("verdict: ", className="verdict-label"), diagnosis.verdict]),
+        html.Div(className=_confidence_class(diagnosis.confidence),
+                 children=f"confidence: {confidence_words(diagnosis)}"),
         table,
-        _changes(d.changes),
-        *[html.Div(f"note: {n}", className="note") for n in d.notes],
+        _changes(diagnosis.changes),
+        *[html.Div(f"note: {note}", className="note") for note in diagnosis.notes],
     ])
 
 
@@ -76,10 +79,10 @@ def _step_state(checks: list, big_enough: bool, finished: bool) -> bool | None:
     """pass (True), fail (False) or not decided yet (None: a move not found, or still too small)."""
     if not (big_enough or finished):
         return None
-    return big_enough and not any(c.ok is False for c in checks)
+    return big_enough and not any(check.ok is False for check in checks)
 
 
-def guided_view(g: GuidedResult | None, finished: bool, samples: int = 0) -> html.Div:
+def guided_view(guided: GuidedResult | None, finished: bool, samples: int = 0) -> html.Div:
     """The three steps, each with its instruction, pass/fail and the checks behind it.
 
     While the check runs (``finished`` False) a move not found yet is
@@ -87,12 +90,12 @@ def guided_view(g: GuidedResult | None, finished: bool, samples: int = 0) -> htm
     finished, a missing move fails and the overall checks, the outcome and
     the suggested profile change follow.
     """
-    checks = g.checks if g is not None else []
-    moves = g.moves if g is not None else {}
+    checks = guided.checks if guided is not None else []
+    moves = guided.moves if guided is not None else {}
     items, current = [], None
     for number, kind in enumerate(MOVES, 1):
-        mine = [c for c in checks if c.step == kind or POSE_CHECK_STEP.get(c.subject) == kind]
-        big_enough = any(c.subject == "move" and c.ok for c in mine)
+        mine = [check for check in checks if check.step == kind or POSE_CHECK_STEP.get(check.subject) == kind]
+        big_enough = any(check.subject == "move" and check.ok for check in mine)
         ok = _step_state(mine, big_enough, finished)
         is_current = ok is None and current is None
         current = kind if is_current else current
@@ -100,19 +103,21 @@ def guided_view(g: GuidedResult | None, finished: bool, samples: int = 0) -> htm
         step = [html.Div([html.Span(mark, className=_MARK_CLASS[ok] if ok is not None else "mark wait"),
                           f" {number}. {STEP_TITLES[kind]}: {INSTRUCTIONS[kind]}"], className="step-title")]
         if kind in moves or finished:
-            step.append(html.Ul([html.Li([html.Span(CHECK_MARK[c.ok], className=_MARK_CLASS[c.ok]), f" {c.subject}: {c.detail}"])
-                                 for c in mine], className="step-checks"))
+            step.append(html.Ul([html.Li([html.Span(CHECK_MARK[check.ok], className=_MARK_CLASS[check.ok]),
+                                          f" {check.subject}: {check.detail}"])
+                                 for check in mine], className="step-checks"))
         items.append(html.Li(step, className="guided-step current" if is_current else "guided-step"))
     children = [html.Ol(items, className="guided-steps")]
-    if g is None:
+    if guided is None:
         children.append(html.Div(f"{samples} samples so far: start pushing", className="guided-outcome"))
     elif finished:
-        overall = [c for c in checks if c.step == "overall" and c.subject not in POSE_CHECK_STEP]
+        overall = [check for check in checks if check.step == "overall" and check.subject not in POSE_CHECK_STEP]
         children += [
-            html.Ul([html.Li([html.Span(CHECK_MARK[c.ok], className=_MARK_CLASS[c.ok]), f" {c.subject}: {c.detail}"])
-                     for c in overall], className="guided-overall"),
-            html.Div(f"result: {guided_outcome(g)}", className="guided-outcome"),
-            _changes(profile_changes(g.profile, g.corrected)),
+            html.Ul([html.Li([html.Span(CHECK_MARK[check.ok], className=_MARK_CLASS[check.ok]),
+                              f" {check.subject}: {check.detail}"])
+                     for check in overall], className="guided-overall"),
+            html.Div(f"result: {guided_outcome(guided)}", className="guided-outcome"),
+            _changes(profile_changes(guided.profile, guided.corrected)),
         ]
     else:
         done = sum(1 for kind in MOVES if kind in moves)

@@ -86,10 +86,11 @@ def run_diagnosis(
     if cols is None or not len(cols):
         return diagnosis_message(f"No samples from {robot} yet."), None
     try:
-        d = diagnose_recent(cols, profile, float(seconds), robot)
+        diagnosis = diagnose_recent(cols, profile, float(seconds), robot)
     except PodwatchError as exc:
         return diagnosis_message(f"Cannot diagnose: {exc}"), None
-    return diagnosis_view(d, f"{how} ({station.active.label})" + (f": {reason}" if reason else "")), d.confidence
+    why = f"{how} ({station.active.label})" + (f": {reason}" if reason else "")
+    return diagnosis_view(diagnosis, why), diagnosis.confidence
 
 
 def guided_panel(station: Station, run: dict) -> html.Div:
@@ -151,6 +152,9 @@ def warm_up(station: Station) -> None:
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
+    """Wire the Diagnosis and Guided check panels to ``station``, after loading what the
+    first diagnosis needs (``warm_up``); call once, from ``create_app``.
+    """
     warm_up(station)
     # Both ticking callbacks go through the views' gate (pacing.ASK_WHEN_ANSWERED): a
     # tick asks only once the previous answer is in, else on a busy machine

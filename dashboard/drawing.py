@@ -91,6 +91,9 @@ def profile_svg(profile: Profile) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
+    """``python -m dashboard.drawing PROFILE.toml OUT.svg``: write the profile's drawing;
+    returns the exit status.
+    """
     args = sys.argv[1:] if argv is None else argv
     if len(args) != 2:
         print("usage: python -m dashboard.drawing PROFILE.toml OUT.svg", file=sys.stderr)

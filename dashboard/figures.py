@@ -4,19 +4,16 @@ Owns how each view looks: colours, trace order, axis titles with units, the
 robot footprint drawing. Every builder takes arrays that are already
 windowed and downsampled, in display units; nothing here reads a clock, a
 session or a file, so each view is tested on known samples. Figures are
-plain dicts, not graph objects: building graph objects with validation took
-about 0.3 s per refresh, far over the page's budget. Arrays go out as plain
-rounded numbers, not Plotly's base64 typed arrays: extendData appends to the
-figure as the page holds it, and Plotly cannot extend a typed-array spec.
+plain dicts, not graph objects, whose validation is far over the page's
+budget. Arrays go out as plain rounded numbers, not Plotly's base64 typed
+arrays: extendData appends to the figure as the page holds it, and Plotly
+cannot extend a typed-array spec.
 
 Traces are SVG ``scatter``, not WebGL ``scattergl``: the page only ever holds
 downsampled series (``Settings.points``, 1000 by default, per view and
 window), and at that length SVG is the faster of the two wherever WebGL is
 rendered in software (a laptop without GPU acceleration, headless Chromium
-in CI). Measured in headless Chromium 156 with SwiftShader, the page's five
-graphs at 1000 points per trace: about 1200 ms per update with scattergl
-against about 230 ms with scatter; on the live page the browser's CPU time
-per update fell from about 1000 ms to about 550 ms (tests/bench/bench_dashboard.py).
+in CI).
 """
 
 from __future__ import annotations
@@ -309,6 +306,9 @@ def loop_traces(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms:
 
 
 def loop_extension(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms: np.ndarray, max_points: int) -> tuple[dict, list[int], int]:
+    """extendData for ``loop_traces``: new loop periods and long loops appended, each
+    trace kept to ``max_points``.
+    """
     return {"x": [as_list(t), as_list(long_t)], "y": [as_list(loop_ms), as_list(long_ms)]}, [0, 1], max_points
 
 

@@ -50,6 +50,7 @@ def _legend_key() -> html.Div:
 
 
 def build(settings: Settings, replay_mode: bool) -> html.Div:
+    """The page's component tree; ``replay_mode`` shows the replay bar from the start."""
     window_options = [{"label": f"last {w} s" if w < 120 else f"last {w // 60} min", "value": w} for w in WINDOWS_S]
     controls = html.Header(
         className="topbar",

@@ -53,13 +53,10 @@ function(n, cursor, request, barClass) {{
 }}
 """
 # Each answer also paints texts (cursor["paint"]: readouts, status line, link
-# table) straight into their elements, which hold no children for React: sent
-# as components' children, every text cost the page a round of Dash's
-# bookkeeping (which runs over every component on the page), and every cell of
-# a rebuilt link table one more. Every answer carries every readout (a few
-# hundred bytes), not only those that changed: Dash may run this function once
-# for two answers that came close together, and the first one's texts would
-# be lost for as long as they did not change. The page skips unchanged texts.
+# table) straight into elements that hold no children for React, sparing a
+# round of Dash's bookkeeping per text. Every answer carries every readout:
+# Dash may run this once for two close answers, and texts that changed only in
+# the first would be lost. The page skips unchanged texts.
 PAINT_AND_ASK_NEXT = f"""
 function(cursor, request, paused, barClass) {{
     const paint = (cursor && cursor.paint) || {{}};

@@ -15,14 +15,15 @@ from dashboard import readouts
 from receiver.live.session import LinkState, RobotSnapshot
 
 
-def disagreement_values(d: readouts.Disagreement | None, unit: str) -> list[str]:
+def disagreement_values(disagreement: readouts.Disagreement | None, unit: str) -> list[str]:
     """Texts for POSITION_NOW ... HEADING_GROWTH, in that order."""
-    if d is None:
-        d = readouts.Disagreement(*([math.nan] * 6), 0.0, 0.0)
+    if disagreement is None:
+        disagreement = readouts.Disagreement(*([math.nan] * 6), 0.0, 0.0)
     q = readouts.quote
     return [
-        q(d.position_now, unit), q(d.position_worst, unit), q(d.position_per_m, f"{unit}/m"),
-        q(d.heading_now_deg, "deg", 1), q(d.heading_worst_deg, "deg", 1), q(d.heading_per_turn_deg, "deg/turn", 1),
+        q(disagreement.position_now, unit), q(disagreement.position_worst, unit),
+        q(disagreement.position_per_m, f"{unit}/m"), q(disagreement.heading_now_deg, "deg", 1),
+        q(disagreement.heading_worst_deg, "deg", 1), q(disagreement.heading_per_turn_deg, "deg/turn", 1),
     ]
 
 
@@ -48,15 +49,15 @@ def _cell(tag: str, text: str, css_class: str = "") -> str:
 def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> str:
     """The link-health table as HTML (every text escaped), one row per robot."""
     rows = []
-    for robot, s in sorted(snapshots.items()):
-        if s.state is LinkState.QUIET:
-            state = f"no data for {max(now - s.last_rx, 0.0):.0f} s"
+    for robot, snap in sorted(snapshots.items()):
+        if snap.state is LinkState.QUIET:
+            state = f"no data for {max(now - snap.last_rx, 0.0):.0f} s"
         else:
-            state = s.state.value
-        errors = ", ".join(f"{reason} {n}" for reason, n in sorted(s.errors.items())) or "none"
-        cells = [_cell("td", robot), _cell("td", state, f"state {_STATE_CLASS[s.state]}")] + [
-            _cell("td", text) for text in (f"{s.messages}", f"{s.rate_hz:.0f} msg/s", f"{s.gaps}", f"{s.duplicates}",
-                                           f"{s.late}", errors)]
+            state = snap.state.value
+        errors = ", ".join(f"{reason} {n}" for reason, n in sorted(snap.errors.items())) or "none"
+        cells = [_cell("td", robot), _cell("td", state, f"state {_STATE_CLASS[snap.state]}")] + [
+            _cell("td", text) for text in (f"{snap.messages}", f"{snap.rate_hz:.0f} msg/s", f"{snap.gaps}",
+                                           f"{snap.duplicates}", f"{snap.late}", errors)]
         row_class = ' class="selected"' if robot == selected else ""
         rows.append(f"<tr{row_class}>{''.join(cells)}</tr>")
     caption = ""

@@ -96,10 +96,14 @@ class LoopTiming:
 
     @property
     def rate_hz(self) -> float:
+        """Loops per second from the mean period; NaN when unknown."""
         return 1.0 / self.mean_s if self.mean_s > 0 else math.nan
 
 
 def loop_timing(loop_s: np.ndarray, threshold_s: float) -> LoopTiming:
+    """Statistics of the loop periods ``loop_s`` (s, NaN where unknown); ``long`` counts
+    those over ``threshold_s``.
+    """
     loop = loop_s[np.isfinite(loop_s)]
     if not len(loop):
         return LoopTiming(0, math.nan, math.nan, math.nan, 0)

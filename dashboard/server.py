@@ -30,6 +30,7 @@ logging.getLogger("waitress.queue").setLevel(logging.ERROR)
 
 
 def is_loopback(host: str) -> bool:
+    """True for "localhost" and for a loopback IP address; any other name counts as not loopback."""
     if host == "localhost":
         return True
     try:
@@ -55,10 +56,12 @@ class DashboardServer:
 
     @property
     def url(self) -> str:
+        """The page's address; a wildcard host shows as 127.0.0.1."""
         host = "127.0.0.1" if self.host in ("0.0.0.0", "") else self.host
         return f"http://{host}:{self.port}/"
 
     def start(self) -> None:
+        """Serve from the daemon thread; ``stop`` ends it."""
         self._thread.start()
 
     def _serve(self) -> None:

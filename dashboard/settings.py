@@ -32,23 +32,23 @@ def parse_length(text: str) -> float:
 
 @dataclass(frozen=True)
 class Settings:
+    """One dashboard's settings: lengths in metres, times in seconds (``tick_ms`` in ms),
+    the self-diagnosis thresholds in inches and degrees.
+    """
+
     field_size_m: float = parse_length(FIELD_SIZE)
     footprint_m: float = parse_length(FOOTPRINT)
     loop_threshold_s: float = LOOP_THRESHOLD_MS / 1000.0
     window_s: float = 60.0
     # The page asks for new points as soon as the last are answered (pacing.PAINT_AND_ASK_NEXT);
-    # its interval is a watchdog that only starts it, resumes it and asks again
-    # after a lost request. Ticks cost the page its callback bookkeeping even
-    # when they ask for nothing (at 500 ms rather than 200 ms: 10-30 % less
-    # browser CPU per update), and a watchdog needs no more than one a second.
+    # its interval is only a watchdog (start, resume, a lost request), and ticks
+    # cost the page its callback bookkeeping even when they ask for nothing.
     tick_ms: int = 1000
     points: int = 1000  # most points per view and window (server-side downsampling beyond)
     full_every_s: float = 10.0  # a whole redraw this often re-trims the window exactly
     # The page diagnoses by itself when the disagreement first passes either of
-    # these. Both poses come from the same counts, so with a right profile
-    # they stay within rounding and timing differences, far below this; a
-    # sign mistake passes it within a second of driving (simulated
-    # figure-eight with a reversed wheel: 0.3 s to 5 deg, 0.4 s to 2 in).
+    # these: with a right profile both poses (from the same counts) stay far
+    # below them, while a sign mistake passes them within a second of driving.
     diagnose_position_in: float = 2.0
     diagnose_heading_deg: float = 5.0
     diagnose_s: float = 10.0  # default clip: the last this many seconds

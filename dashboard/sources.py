@@ -41,6 +41,7 @@ class LiveSource:
         self.label = "live"
 
     def now(self) -> float:
+        """The receiver's wall clock, s since the epoch: the time line of the hub's rx."""
         return self.clock()
 
 
@@ -86,6 +87,7 @@ class ReplaySource:
         self.generation += 1
 
     def now(self) -> float:
+        """Where the replay is on the recording's time line (its rx stamps), s."""
         return self._position
 
     @property
@@ -94,6 +96,7 @@ class ReplaySource:
         return self._position - self.origin
 
     def play(self) -> None:
+        """Play on from the current position (from the start when at the end)."""
         with self._lock:
             if self._next >= len(self.samples):
                 self.seek(0.0)
@@ -101,11 +104,13 @@ class ReplaySource:
             self.playing = True
 
     def pause(self) -> None:
+        """Feed what is due, then hold the position."""
         with self._lock:
             self.advance()
             self.playing = False
 
     def set_speed(self, speed: float) -> None:
+        """Play at ``speed`` times real time from now on; UsageError unless positive."""
         if not speed > 0:
             raise UsageError(f"replay speed must be positive, got {speed!r}")
         with self._lock:
@@ -147,6 +152,7 @@ class ReplaySource:
             self.advance()
 
     def stop(self) -> None:
+        """End the replay clock's thread (``start``); the position stays where it is."""
         self._stop.set()
         if self._thread is not None:
             self._thread.join()
@@ -174,6 +180,7 @@ class Station:
 
     @property
     def active(self) -> LiveSource | ReplaySource:
+        """The shown source: the replay when there is one, else the live receiver."""
         return self.replay if self.replay is not None else self.live
 
     def profile(self, robot: str | None) -> Profile | None:
@@ -222,5 +229,6 @@ class Station:
         return True
 
     def close(self) -> None:
+        """Stop the replay's thread, if any; the live receiver is its owner's to stop."""
         if self.replay is not None:
             self.replay.stop()

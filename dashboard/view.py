@@ -29,11 +29,9 @@ NO_PROFILE_UNIT = "robot units"
 _ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
 VIEWS = ("track", "poses", "errors", "loop")
 # Appends go to one group per refresh, in turn, each group with every row
-# since it was last sent; the readouts follow every refresh. Each graph
-# redrawn costs the browser 20-60 ms of its main thread (Plotly redraws a
-# whole graph to append to it), and the five graphs together kept a page
-# below 5 refreshes a second on two cores; half of them per refresh keeps
-# each graph moving at half the refresh rate and the page above it.
+# since it was last sent; the readouts follow every refresh. Plotly redraws a
+# whole graph to append to it: half the graphs per refresh keeps the page's
+# refresh rate up, each graph moving at half of it.
 APPEND_GROUPS = (("track", "errors"), ("poses", "loop"))  # the loop histogram goes with "loop"
 # A histogram is a whole new figure for the page to lay out and draw, not an
 # append; its shape over a window barely moves in a second.
@@ -84,6 +82,10 @@ def status_line(snap: RobotSnapshot | None, now: float, source_label: str) -> st
 def refresh(
     station: Station, settings: Settings, robot: str | None, window_s: float, cursor: dict | None, force_full: bool = False
 ) -> Refresh:
+    """One refresh of ``robot`` (the first there is when unknown) over the last ``window_s``
+    seconds. ``cursor`` is the last refresh's ``Refresh.cursor``, which the page sends
+    back; without one, or with ``force_full``, everything is redrawn.
+    """
     source = station.active
     now = source.now()
     hub = source.hub
@@ -93,8 +95,10 @@ def refresh(
         robot = robots[0] if robots else None
     unit, metres_per_unit = _unit(station, robot)
     out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, status=status_line(snapshots.get(robot), now, source.label), now=now)
-    named = sum((Counter(s.errors) for s in snapshots.values()), Counter())
-    out.unattributed = {str(r): n - named[str(r)] for r, n in hub.errors.items() if n > named[str(r)]}
+    named = sum((Counter(snap.errors) for snap in snapshots.values()), Counter())
+    out.unattributed = {
+        str(reason): count - named[str(reason)] for reason, count in hub.errors.items() if count > named[str(reason)]
+    }
     key = station.key()
     full = (
         force_full

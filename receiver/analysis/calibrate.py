@@ -40,6 +40,10 @@ MIN_SLIP_STEPS = 20
 
 @dataclass(frozen=True)
 class Measured:
+    """One constant a test measured, in ``unit``: the profile's value (``before``), the
+    measured one (``after``) and its ``bound`` (resolution plus slip).
+    """
+
     name: str
     before: float
     after: float
@@ -49,6 +53,9 @@ class Measured:
     unit: str
 
     def to_json(self) -> dict:
+        """The constant as JSON: ``before`` as "profile", ``after`` as "measured", bounds to
+        three significant digits, an unknown slip as null.
+        """
         return {
             "name": self.name,
             "profile": round(self.before, 9),
@@ -62,6 +69,10 @@ class Measured:
 
 @dataclass
 class Calibration:
+    """A spin or push test's result for one robot: the measured constants, and the
+    profile with them put in (``corrected``, ready for ``write_profile``).
+    """
+
     robot: str
     profile: Profile
     test: str  # "spin" or "push"
@@ -78,6 +89,9 @@ class Calibration:
         return rows
 
     def to_json(self) -> dict:
+        """The result for ``calibrate --json`` (robot, test, values, notes); the caller adds
+        the profile changes.
+        """
         return {
             "robot": self.robot,
             "test": self.test,

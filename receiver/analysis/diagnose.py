@@ -52,6 +52,11 @@ class Ranked:
 
 @dataclass
 class Diagnosis:
+    """One robot's diagnosis: explanations ranked best first with scores, how sure the
+    ranking is, the fitted constants, and the profile that agrees with the robot
+    code (``corrected``). Distances in the profile's unit.
+    """
+
     robot: str
     profile: Profile
     samples: int
@@ -68,13 +73,18 @@ class Diagnosis:
 
     @property
     def best(self) -> Ranked:
+        """The leading explanation (``ranking[0]``)."""
         return self.ranking[0]
 
     @property
     def changes(self) -> list[str]:
+        """The suggested profile change, as ``profile_changes`` lines from ``profile`` to ``corrected``."""
         return profile_changes(self.profile, self.corrected)
 
     def to_json(self, top: int = 5) -> dict:
+        """The diagnosis for ``diagnose --json``: the first ``top`` explanations, numbers rounded,
+        angles in degrees.
+        """
         unit = self.profile.distance_unit
         return {
             "robot": self.robot,

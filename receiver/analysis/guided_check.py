@@ -59,11 +59,16 @@ class Check:
     detail: str
 
     def to_json(self) -> dict:
+        """The line as JSON: step, subject, ok (null when unchecked) and detail."""
         return {"step": self.step, "subject": self.subject, "ok": self.ok, "detail": self.detail}
 
 
 @dataclass(frozen=True)
 class Move:
+    """One move found in the clip: its ``kind`` (one of MOVES), the samples it spans and the
+    wheel travel it caused.
+    """
+
     kind: str
     first: int  # index of the rest sample before the move
     last: int  # index of the sample where it ended
@@ -73,6 +78,10 @@ class Move:
 
 @dataclass
 class GuidedResult:
+    """The guided check of one robot: the moves found, every pass/fail line (``checks``)
+    and the profile with what the check could pin down put right (``corrected``).
+    """
+
     robot: str
     profile: Profile
     moves: dict[str, Move]
@@ -82,13 +91,17 @@ class GuidedResult:
     @property
     def flags(self) -> list[str]:
         """Subjects of the overall checks that failed, e.g. ["wheel right direction"]."""
-        return [c.subject for c in self.checks if c.step == "overall" and c.ok is False]
+        return [check.subject for check in self.checks if check.step == "overall" and check.ok is False]
 
     @property
     def passed(self) -> bool:
-        return all(c.ok is not False for c in self.checks)
+        """True when no check failed (a line the clip could not check does not count against it)."""
+        return all(check.ok is not False for check in self.checks)
 
     def to_json(self) -> dict:
+        """The result for ``diagnose --guided --json``: flags, each move's amount (the turn in
+        degrees) and sample span, and every check.
+        """
         return {
             "robot": self.robot,
             "passed": self.passed,
@@ -97,7 +110,7 @@ class GuidedResult:
                 k: {"amount": round(m.amount * (DEGREES_PER_RADIAN if k == "turn" else 1.0), 6), "t_index": [m.first, m.last]}
                 for k, m in self.moves.items()
             },
-            "checks": [c.to_json() for c in self.checks],
+            "checks": [check.to_json() for check in self.checks],
         }
 
 
@@ -201,8 +214,8 @@ def _read_pose(moves: dict[str, Move], pose: np.ndarray, reported: Reported, uni
     fwd, left, turn = need
     p = reported_to_rep103(pose, reported)
 
-    def shift(m: Move) -> np.ndarray:
-        return p[m.last, :2] - p[m.first, :2]
+    def shift(move: Move) -> np.ndarray:
+        return p[move.last, :2] - p[move.first, :2]
 
     d_fwd, d_left = shift(fwd), shift(left)
     a_fwd, a_left = math.atan2(d_fwd[1], d_fwd[0]), math.atan2(d_left[1], d_left[0])
@@ -269,14 +282,14 @@ def guided_check(clip: SampleClip, profile: Profile, robot: str | None = None) -
     wheels = list(profile.wheels)
     for i, w in enumerate(profile.wheels):
         mine = per_wheel.get(i, [])
-        dirs = [c.ok for c in mine if c.subject.endswith("direction")]
-        scales = [c.ok for c in mine if c.subject.endswith("scale") and c.ok is not None]
+        dirs = [check.ok for check in mine if check.subject.endswith("direction")]
+        scales = [check.ok for check in mine if check.subject.endswith("scale") and check.ok is not None]
         if not dirs:
             checks.append(Check("overall", f"wheel {w.name} direction", None, "no move turned this wheel"))
         elif all(dirs):
             checks.append(Check("overall", f"wheel {w.name} direction", True, "agrees with the profile"))
         else:
-            wrong = [c.step for c in mine if c.subject.endswith("direction") and not c.ok]
+            wrong = [check.step for check in mine if check.subject.endswith("direction") and not check.ok]
             if not any(dirs):
                 detail = f"counts the other way from the profile on {', '.join(wrong)}: flip its reversed"
                 wheels[i] = replace(w, reversed=not w.reversed)

@@ -44,10 +44,14 @@ class Hypothesis:
 
     @property
     def id(self) -> str:
+        """The mistakes as fault specs joined by "+" (e.g. "reversed:right+y-axis"), or "none";
+        each part is a ``simulate --fault`` value.
+        """
         return "+".join(self.specs) or "none"
 
     @property
     def size(self) -> int:
+        """How many mistakes it combines: 0, 1 or 2."""
         return len(self.specs)
 
 

@@ -34,6 +34,10 @@ _RANK_REL = 1e-7
 
 @dataclass(frozen=True)
 class Fitted:
+    """One fitted constant, in ``unit``: the hypothesis profile's value (``before``), the
+    fitted value and its standard error (``std``).
+    """
+
     name: str
     before: float  # the value the hypothesis's profile has
     fitted: float
@@ -43,14 +47,21 @@ class Fitted:
 
     @property
     def determined(self) -> bool:
+        """True when the clip pins the value down: ``std`` within DETERMINED_REL of ``scale``."""
         return bool(self.std <= DETERMINED_REL * self.scale)
 
     @property
     def significant(self) -> bool:
+        """True when the fit replaces the profile's value: determined, and off by more than
+        three standard errors and more than SIGNIFICANT_REL of ``scale``.
+        """
         change = abs(self.fitted - self.before)
         return self.determined and change > max(3.0 * self.std, SIGNIFICANT_REL * self.scale)
 
     def to_json(self) -> dict:
+        """The constant as JSON; "applied" says whether the fit replaced the profile's value,
+        an undetermined std is null.
+        """
         std = self.std if math.isfinite(self.std) else None
         return {
             "name": self.name,
@@ -65,6 +76,10 @@ class Fitted:
 
 @dataclass
 class Fit:
+    """The refinement of one hypothesis: each constant, the RMS residual (distance unit)
+    before and after, and the profile with the significant values in it.
+    """
+
     values: list[Fitted]
     score_before: float
     score_after: float

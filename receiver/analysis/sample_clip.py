@@ -41,6 +41,7 @@ class SampleClip:
 
     @property
     def duration_s(self) -> float:
+        """Robot-clock span from the first sample to the last, s (0 when empty)."""
         return float(self.t[-1] - self.t[0]) if len(self.t) else 0.0
 
 
@@ -53,23 +54,23 @@ def clip_from_columns(cols: Columns, need_pose: bool = False) -> SampleClip:
     """
     kinds = classify(cols.seq, cols.t, cols.reset)
     accepted = np.isin(kinds, ACCEPTED)
-    c = cols.take(np.flatnonzero(accepted))
+    kept = cols.take(np.flatnonzero(accepted))
     anchor = np.isin(kinds[accepted], ANCHORS)
     if need_pose:
         segment = np.cumsum(anchor)
-        keep = np.flatnonzero(np.isfinite(c.pose).all(axis=1))
+        keep = np.flatnonzero(np.isfinite(kept.pose).all(axis=1))
         if len(keep) < MIN_SAMPLES:
             raise UsageError(
                 f"only {len(keep)} samples carry the robot's own pose; need at least {MIN_SAMPLES} to compare"
             )
         anchor = np.concatenate([[True], segment[keep][1:] != segment[keep][:-1]])
-        c = c.take(keep)
-    elif len(c) < MIN_SAMPLES:
-        raise UsageError(f"only {len(c)} usable samples; need at least {MIN_SAMPLES}")
-    dcounts = np.zeros(c.ticks.shape)
-    dcounts[1:] = count_change(c.ticks[1:], c.ticks[:-1])
+        kept = kept.take(keep)
+    elif len(kept) < MIN_SAMPLES:
+        raise UsageError(f"only {len(kept)} usable samples; need at least {MIN_SAMPLES}")
+    dcounts = np.zeros(kept.ticks.shape)
+    dcounts[1:] = count_change(kept.ticks[1:], kept.ticks[:-1])
     dcounts[anchor] = 0.0
-    return SampleClip(t=c.t, dcounts=dcounts, anchor=anchor, pose=c.pose, imu=c.imu)
+    return SampleClip(t=kept.t, dcounts=dcounts, anchor=anchor, pose=kept.pose, imu=kept.imu)
 
 
 def last_seconds(cols: Columns, seconds: float) -> Columns:

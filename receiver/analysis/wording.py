@@ -17,32 +17,37 @@ CHECK_MARK = {True: "pass", False: "FAIL", None: "----"}
 SUGGESTED = "suggested profile change"
 
 
-def clip_line(d: Diagnosis) -> str:
+def clip_line(diagnosis: Diagnosis) -> str:
     """What the clip held, e.g. "practice-bot: 1000 samples over 10.0 s; 310 in driven, 900 deg turned"."""
+    unit = diagnosis.profile.distance_unit
     return (
-        f"{d.robot}: {d.samples} samples over {d.duration_s:.1f} s; {d.travel:.3g} {d.profile.distance_unit} driven, "
-        f"{math.degrees(d.rotation_rad):.0f} deg turned"
+        f"{diagnosis.robot}: {diagnosis.samples} samples over {diagnosis.duration_s:.1f} s; "
+        f"{diagnosis.travel:.3g} {unit} driven, {math.degrees(diagnosis.rotation_rad):.0f} deg turned"
     )
 
 
-def confidence_words(d: Diagnosis) -> str:
+def confidence_words(diagnosis: Diagnosis) -> str:
     """The confidence with the margin behind it, e.g. "high (margin 3.1 in between ...)"."""
-    return f"{d.confidence} (margin {d.margin:.3g} {d.profile.distance_unit} between the first and second explanation)"
+    return (
+        f"{diagnosis.confidence} (margin {diagnosis.margin:.3g} {diagnosis.profile.distance_unit} "
+        "between the first and second explanation)"
+    )
 
 
-def explanation_id(r: Ranked) -> str:
+def explanation_id(ranked: Ranked) -> str:
     """A hypothesis id with the ones no clip can tell from it, e.g. "swapped:left,right (= ...)"."""
-    return r.hypothesis.id + (f" (= {', '.join(e.id for e in r.equivalent)})" if r.equivalent else "")
+    equivalent = ranked.equivalent
+    return ranked.hypothesis.id + (f" (= {', '.join(h.id for h in equivalent)})" if equivalent else "")
 
 
 def change_lines(changes: list[str], say_none: bool = True) -> list[str]:
     """The "suggested profile change:" header and one indented line per change."""
     if not changes:
         return [f"{SUGGESTED}: none"] if say_none else []
-    return [f"{SUGGESTED}:", *(f"  {c}" for c in changes)]
+    return [f"{SUGGESTED}:", *(f"  {change}" for change in changes)]
 
 
-def guided_outcome(g: GuidedResult) -> str:
+def guided_outcome(guided: GuidedResult) -> str:
     """ "all checks pass", or how many problems and which."""
-    flags = g.flags
-    return "all checks pass" if g.passed else f"{len(flags)} problem(s): " + ", ".join(flags)
+    flags = guided.flags
+    return "all checks pass" if guided.passed else f"{len(flags)} problem(s): " + ", ".join(flags)

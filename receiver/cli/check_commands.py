@@ -76,48 +76,61 @@ def _write(args: argparse.Namespace, before: Profile, after: Profile) -> None:
     print(f"podwatch: wrote {args.write_profile}", file=sys.stderr)
 
 
-def _diagnosis_text(d: Diagnosis) -> list[str]:
-    unit = d.profile.distance_unit
+def _diagnosis_text(diagnosis: Diagnosis) -> list[str]:
+    unit = diagnosis.profile.distance_unit
+    fit = diagnosis.fit
     lines = [
-        clip_line(d),
-        f"verdict: {d.verdict}",
-        f"confidence: {confidence_words(d)}",
+        clip_line(diagnosis),
+        f"verdict: {diagnosis.verdict}",
+        f"confidence: {confidence_words(diagnosis)}",
         f"  {'#':>2}  {'explanation':44s} {'position RMS':>14s} {'heading RMS':>12s} {'score':>10s}",
     ]
-    for k, r in enumerate(d.ranking[:TOP_HYPOTHESES], 1):
+    for k, ranked in enumerate(diagnosis.ranking[:TOP_HYPOTHESES], 1):
         lines.append(
-            f"  {k:>2}  {explanation_id(r):44s} {r.position_rms:11.3f} {unit:2s} {math.degrees(r.heading_rms):8.2f} deg {r.score:10.3f}"
+            f"  {k:>2}  {explanation_id(ranked):44s} {ranked.position_rms:11.3f} {unit:2s} "
+            f"{math.degrees(ranked.heading_rms):8.2f} deg {ranked.score:10.3f}"
         )
-    lines.append(f"fitted constants (what the robot code uses; the profile's first), RMS {d.fit.score_before:.3g} -> {d.fit.score_after:.3g} {unit}:")
-    for v in d.fit.values:
-        how = f"+-{v.std:.2g}" if v.determined else "not determined by this clip"
-        applied = "  (changed)" if v.significant else ""
-        lines.append(f"  {v.name:30s} {v.before:10.4f} -> {v.fitted:10.4f} {v.unit} {how}{applied}")
-    lines += change_lines(d.changes)
-    lines += [f"note: {n}" for n in d.notes]
+    lines.append(
+        f"fitted constants (what the robot code uses; the profile's first), RMS {fit.score_before:.3g} -> "
+        f"{fit.score_after:.3g} {unit}:"
+    )
+    for fitted in fit.values:
+        how = f"+-{fitted.std:.2g}" if fitted.determined else "not determined by this clip"
+        applied = "  (changed)" if fitted.significant else ""
+        lines.append(f"  {fitted.name:30s} {fitted.before:10.4f} -> {fitted.fitted:10.4f} {fitted.unit} {how}{applied}")
+    lines += change_lines(diagnosis.changes)
+    lines += [f"note: {note}" for note in diagnosis.notes]
     return lines
 
 
-def _guided_text(g: GuidedResult) -> list[str]:
-    lines = [f"{g.robot}: guided check (forward push, left push, counter-clockwise turn)"]
+def _guided_text(guided: GuidedResult) -> list[str]:
+    lines = [f"{guided.robot}: guided check (forward push, left push, counter-clockwise turn)"]
     for step in ("forward", "left", "turn", "overall"):
         lines.append(f"  {step}:")
-        lines += [f"    {CHECK_MARK[c.ok]}  {c.subject:26s} {c.detail}" for c in g.checks if c.step == step]
-    lines.append(f"result: {guided_outcome(g)}")
-    return lines + change_lines(profile_changes(g.profile, g.corrected), say_none=False)
+        lines += [
+            f"    {CHECK_MARK[check.ok]}  {check.subject:26s} {check.detail}"
+            for check in guided.checks
+            if check.step == step
+        ]
+    lines.append(f"result: {guided_outcome(guided)}")
+    return lines + change_lines(profile_changes(guided.profile, guided.corrected), say_none=False)
 
 
 def cmd_diagnose(args: argparse.Namespace) -> int:
+    """``podwatch diagnose``: diagnose (with ``--guided``, guided-check) each chosen robot;
+    prints text or one JSON object and returns the exit status.
+    """
     results: list[dict] = []
     for robot, cols, profile in _robots(args, one=False):
         if args.guided:
-            g = guided_check(clip_from_columns(cols), profile, robot)
-            results.append({"check": "guided", **g.to_json(), "profile_changes": profile_changes(profile, g.corrected)})
-            text, corrected = _guided_text(g), g.corrected
+            guided = guided_check(clip_from_columns(cols), profile, robot)
+            changes = profile_changes(profile, guided.corrected)
+            results.append({"check": "guided", **guided.to_json(), "profile_changes": changes})
+            text, corrected = _guided_text(guided), guided.corrected
         else:
-            d = diagnose(cols, profile, robot)
-            results.append({"check": "diagnose", **d.to_json(TOP_HYPOTHESES)})
-            text, corrected = _diagnosis_text(d), d.corrected
+            diagnosis = diagnose(cols, profile, robot)
+            results.append({"check": "diagnose", **diagnosis.to_json(TOP_HYPOTHESES)})
+            text, corrected = _diagnosis_text(diagnosis), diagnosis.corrected
         if not args.json:
             print("\n".join(text))
         _write(args, profile, corrected)
@@ -127,6 +140,9 @@ def cmd_diagnose(args: argparse.Namespace) -> int:
 
 
 def cmd_calibrate(args: argparse.Namespace) -> int:
+    """``podwatch calibrate``: one spin or push test on one robot; prints the table (or
+    JSON) and returns the exit status.
+    """
     if sum([args.spin_turns is not None, args.spin_imu, args.push_distance is not None]) != 1:
         raise UsageError("choose one test: --spin-turns N, --spin-imu, or --push-distance D with --push-axis x|y")
     if (args.push_distance is None) != (args.push_axis is None):
@@ -143,7 +159,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
     else:
         lines = [f"{robot}: {cal.test} test, {len(clip)} samples over {clip.duration_s:.1f} s", *cal.table()]
         lines += change_lines(changes)
-        lines += [f"note: {n}" for n in cal.notes]
+        lines += [f"note: {note}" for note in cal.notes]
         print("\n".join(lines))
     _write(args, profile, cal.corrected)
     return 0
@@ -159,15 +175,18 @@ def _positive(text: str) -> float:
     return value
 
 
-def _common(p: argparse.ArgumentParser) -> None:
-    p.add_argument("recording", help="recording (.jsonl or .jsonl.gz), or a file of bare wire messages")
-    p.add_argument("--profile", action="append", metavar="P", help="robot profile TOML (repeat for several robots)")
-    p.add_argument("--robot", metavar="NAME", help="check only this robot of the recording")
-    p.add_argument("--json", action="store_true", help="print one JSON object instead of text")
-    p.add_argument("--write-profile", metavar="FILE", help="write the corrected profile here (TOML)")
+def _common(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("recording", help="recording (.jsonl or .jsonl.gz), or a file of bare wire messages")
+    parser.add_argument(
+        "--profile", action="append", metavar="P", help="robot profile TOML (repeat for several robots)"
+    )
+    parser.add_argument("--robot", metavar="NAME", help="check only this robot of the recording")
+    parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
+    parser.add_argument("--write-profile", metavar="FILE", help="write the corrected profile here (TOML)")
 
 
 def add_check_commands(sub: argparse._SubParsersAction) -> None:
+    """Register ``diagnose`` and ``calibrate`` on the program's subparsers."""
     p = sub.add_parser("diagnose", help="explain a disagreement as convention mistakes (or --guided: the hand-push check)")
     _common(p)
     p.add_argument("--last", type=_positive, metavar="S", help="only the last S seconds of the recording")

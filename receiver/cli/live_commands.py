@@ -28,6 +28,9 @@ from receiver.sim.motion_paths import PATHS
 
 
 def cmd_serve(args: argparse.Namespace) -> int:
+    """``podwatch serve``: listen, record and show the page until Ctrl-C or SIGTERM, then
+    print one summary line per robot.
+    """
     import asyncio
 
     from receiver.live.serve import ServeConfig, default_recording_path, parse_host_port, serve
@@ -103,6 +106,9 @@ class _PageServer:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
+    """``podwatch demo``: a receiver and the page, with a simulated robot streaming to them
+    over UDP (loopback by default).
+    """
     import asyncio
 
     from receiver.live.demo import DEMO_FAULTS, SimulatedRobot, demo_profile
@@ -143,6 +149,9 @@ def cmd_demo(args: argparse.Namespace) -> int:
 
 
 def cmd_replay(args: argparse.Namespace) -> int:
+    """``podwatch replay``: feed a recording through a hub and print the summary, or send it
+    ``--to`` a receiver, or play it on the page with ``--dashboard``.
+    """
     import asyncio
 
     from receiver.formats.recording import read_recording
@@ -196,23 +205,24 @@ def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]
     return 0
 
 
-def _dashboard_options(p: argparse.ArgumentParser, optional: bool) -> None:
-    where = p.add_mutually_exclusive_group() if optional else p
+def _dashboard_options(parser: argparse.ArgumentParser, optional: bool) -> None:
+    where = parser.add_mutually_exclusive_group() if optional else parser
     where.add_argument(
         "--dashboard", metavar="HOST:PORT",
         help="serve the page here (default 127.0.0.1:47480; an address other than loopback is logged as a warning)",
     )
     if optional:
         where.add_argument("--no-dashboard", action="store_true", help="run headless, without the page")
-    p.add_argument("--field", default="144in", metavar="LENGTH",
-                   help="side of the square field on the track map, e.g. 144in or 3.66m (default 144in)")
-    p.add_argument("--footprint", default="18in", metavar="LENGTH",
-                   help="side of the robot's square footprint on the track map (default 18in)")
-    p.add_argument("--loop-threshold", type=float, default=50.0, metavar="MS",
-                   help="loops longer than this are highlighted (default 50)")
+    parser.add_argument("--field", default="144in", metavar="LENGTH",
+                        help="side of the square field on the track map, e.g. 144in or 3.66m (default 144in)")
+    parser.add_argument("--footprint", default="18in", metavar="LENGTH",
+                        help="side of the robot's square footprint on the track map (default 18in)")
+    parser.add_argument("--loop-threshold", type=float, default=50.0, metavar="MS",
+                        help="loops longer than this are highlighted (default 50)")
 
 
 def add_live_commands(sub: argparse._SubParsersAction) -> None:
+    """Register ``serve``, ``replay`` and ``demo`` on the program's subparsers."""
     p = sub.add_parser("serve", help="live receiver: listen, recompute, record")
     p.add_argument("--profile", action="append", metavar="P", help="robot profile TOML (repeat for several robots)")
     p.add_argument(

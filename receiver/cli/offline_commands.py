@@ -54,6 +54,7 @@ class ProgressLine:
         self.stream.flush()
 
     def close(self) -> None:
+        """Erase the progress line, if one was shown; call before writing anything else to stderr."""
         if self._shown:
             self.stream.write("\r\033[K")
             self.stream.flush()
@@ -159,6 +160,9 @@ def cmd_recompute(args: argparse.Namespace) -> int:
 
 
 def cmd_simulate(args: argparse.Namespace) -> int:
+    """``podwatch simulate``: write a recording of a simulated robot (``--out``) or stream
+    it in real time (``--to``).
+    """
     profile = load_profile(args.profile)
     faults = parse_faults(args.fault or (), profile)
     run = simulate(profile, args.path, args.rate, args.duration, args.seed, faults, args.near_wrap, args.imu)

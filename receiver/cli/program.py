@@ -20,6 +20,7 @@ from receiver.errors import PodwatchError
 
 
 def build_parser() -> argparse.ArgumentParser:
+    """The ``podwatch`` argument parser with every command; each command sets ``args.run``."""
     parser = argparse.ArgumentParser(
         prog="podwatch", description="Check a robot's tracking-wheel odometry against an independent recompute."
     )
@@ -33,6 +34,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command line (``sys.argv[1:]`` when None) and return the exit status: 1 with
+    one error line for a PodwatchError or a system error.
+    """
     parser = build_parser()
     args = parser.parse_args(argv)
     try:

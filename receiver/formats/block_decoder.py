@@ -54,18 +54,24 @@ class Decoded:
         self.lines = 0
 
     def fail(self, failure: Failure, line_index: int | None, count: int = 1) -> None:
+        """Count ``count`` messages refused for ``failure``; the first is kept with its line's
+        index in the block (None when it is not one line).
+        """
         self.skipped[failure.reason] += count
         if self.first_failure is None:
             self.first_failure = (line_index, failure)
 
     def add(self, samples: list[Sample]) -> None:
+        """Append valid samples as columns per robot; messages whose number of counts differs
+        from the robot's (its ``ticks_length``, else its first message's) are counted as refused.
+        """
         robots = set(map(attrgetter("robot"), samples))
         if len(robots) == 1:  # the common case: no regrouping pass
             groups = {robots.pop(): samples}
         else:
             groups = defaultdict(list)
-            for s in samples:
-                groups[s.robot].append(s)
+            for sample in samples:
+                groups[sample.robot].append(sample)
         for robot, group in groups.items():
             n_wheels = self.ticks_length.setdefault(robot, len(group[0].ticks))
             ticks = list(map(attrgetter("ticks"), group))
@@ -81,6 +87,9 @@ class Decoded:
         self.fail(Failure(Reason.WRONG_TICKS_LENGTH, detail), None, count)
 
     def decode_block(self, block: bytes) -> None:
+        """Decode a block of complete lines into this result: all at once, or line by line
+        when any line fails.
+        """
         self.lines = block.count(b"\n")
         try:
             samples = _lines.decode_lines(block)
@@ -135,6 +144,7 @@ Block = bytes | tuple[str, int, int]  # complete lines, or (path, start, end) of
 
 
 def read_range(path: str, start: int, end: int) -> bytes:
+    """Bytes [start, end) of the file at ``path``: a worker's block of an uncompressed recording."""
     with open(path, "rb") as fh:
         return os.pread(fh.fileno(), end - start, start)
 
@@ -174,12 +184,9 @@ def keep_freed_memory() -> bool:
     """Ask the C allocator to keep freed memory for reuse; False where it cannot.
 
     By default glibc maps each large allocation afresh and unmaps it when
-    freed (its threshold only grows up to 32 MB, and the heap's top is given
-    back past twice that), so numpy's per-block temporaries and columns were
-    faulted in and zeroed by the kernel again for every block: 350,000 page
-    faults and 1.1-1.25 s of system time for 1M messages, against 200,000
-    and 0.65-0.8 s with these settings (DEVELOPERS.md). Process-wide
-    and inherited by forked workers; meant for the command-line process.
+    freed, so numpy's per-block temporaries and columns would be faulted in and
+    zeroed by the kernel again for every block. Process-wide and inherited by
+    forked workers; meant for the command-line process.
     """
     try:
         mallopt = ctypes.CDLL(None).mallopt

@@ -147,11 +147,11 @@ def split_bad_names(samples: list[Sample]) -> tuple[list[Sample], list[Failure]]
     if not bad:
         return samples, []
     failures = [
-        Failure(Reason.OUT_OF_RANGE, f"robot name {s.robot!r} is not 1-32 of A-Z a-z 0-9 _ . -")
-        for s in samples
-        if s.robot in bad
+        Failure(Reason.OUT_OF_RANGE, f"robot name {sample.robot!r} is not 1-32 of A-Z a-z 0-9 _ . -")
+        for sample in samples
+        if sample.robot in bad
     ]
-    return [s for s in samples if s.robot not in bad], failures
+    return [sample for sample in samples if sample.robot not in bad], failures
 
 
 def _named(failure: Failure, data: bytes) -> Failure:

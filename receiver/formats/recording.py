@@ -31,10 +31,8 @@ from receiver.odometry.columns import Columns, concat_columns
 from receiver.odometry.robot import Profile
 
 RECORDING_VERSION = 1
-# Blocks of 4 MB rather than 16: the decoded objects of a smaller block fit
-# in memory the small-object allocator still holds from the last, so fewer
-# pages are faulted in afresh (1M messages: 200,000 -> 133,000 page faults,
-# peak memory 140 -> 70 MB; CPU time the same within this machine's noise).
+# Blocks of a few MB: a block's decoded objects then fit in memory the small-object
+# allocator still holds from the last, so fewer pages are faulted in afresh.
 _CHUNK_BYTES = 4 * 1024 * 1024
 GZIP_MAGIC = b"\x1f\x8b"
 
@@ -54,6 +52,7 @@ class RecordingData:
 
     @property
     def message_count(self) -> int:
+        """Valid messages over every robot."""
         return sum(len(c) for c in self.robots.values())
 
 
@@ -236,7 +235,7 @@ class RecordingStream:
         pool: Pool | None = None,
     ) -> None:
         self.path = str(path)
-        self._pool = pool  # decode on these workers (bulk.worker_pool) when given
+        self._pool = pool  # decode on these workers (block_decoder.worker_pool) when given
         self._progress = progress
         self._stream, self._raw = _open(self.path)
         if pool is not None and self._stream is self._raw:  # uncompressed: the workers read their own ranges
@@ -259,6 +258,7 @@ class RecordingStream:
 
     @property
     def skipped(self) -> Counter:
+        """Messages skipped so far, by Reason; complete once the stream is iterated to the end."""
         return self._tally.skipped
 
     def __iter__(self) -> Iterator[tuple[str, Columns]]:
@@ -295,6 +295,7 @@ class RecordingStream:
             raise RecordingError(f"{self.path}: no valid messages ({tally.first_failure or 'nothing but blank lines'})")
 
     def close(self) -> None:
+        """Close the file; ``with RecordingStream(...)`` calls it."""
         self._stream.close()
         self._raw.close()
 

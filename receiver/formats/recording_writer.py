@@ -25,8 +25,8 @@ from receiver.odometry.robot import Profile
 # burst between two flushes costs one large write instead of many small ones.
 _WRITE_BYTES = 1024 * 1024
 FLUSH_INTERVAL_S = 0.2  # the longest a received message waits in memory when flush(now) is called often
-# zlib level 1: on recordings here about 3x faster than the default 6 (63 vs
-# 20 MB/s) for files about 9 % larger; live recording must leave the receiver time.
+# zlib level 1, not the default 6: several times faster for slightly larger
+# files, and live recording must leave the receiver time.
 _GZIP_LEVEL = 1
 # A raw line break can only stand between a message's tokens (JSON strings hold
 # none), so a space in its place keeps the message and keeps it on one line.
@@ -98,14 +98,10 @@ class RecordingWriter:
         if raws is None:
             pending += self._encoder.encode_lines(samples)
         else:
-            # Each raw object with ',"rx":<rx>' before its closing brace. The
-            # receiver's rx comes last, so it wins over any "rx" the robot sent
-            # (a repeated key decodes to its last value); msgspec writes the
-            # shortest text that reads back as the same float. At one message
-            # per call, the usual case, this costs less than encoding the
-            # sample: the line is put together in the buffer itself, and the
-            # loop is inline and indexes the samples (a method call and a zip
-            # cost 0.1 and 0.2 us per call here).
+            # Each raw object with ',"rx":<rx>' before its closing brace: the receiver's
+            # rx comes last, so it wins over any "rx" the robot sent (a repeated key
+            # decodes to its last value). Put together in the buffer by an inline,
+            # indexing loop: at one message per call this is cheaper than encoding.
             assert len(raws) == len(samples)
             encode_into = self._encode_into
             k = 0
@@ -143,6 +139,7 @@ class RecordingWriter:
         return True
 
     def close(self) -> None:
+        """Write out what is buffered and close the file; a second call does nothing."""
         if self._file.closed:
             return
         try:

@@ -57,9 +57,11 @@ class SimulatedRobot:
         self._thread = threading.Thread(target=self._run, name=f"podwatch-robot-{profile.name}", daemon=True)
 
     def start(self) -> None:
+        """Start streaming from the robot's own thread and event loop; ``stop`` ends it."""
         self._thread.start()
 
     def stop(self) -> None:
+        """Cancel the stream and wait for the thread; the robot cannot be started again."""
         self._loop.call_soon_threadsafe(lambda: self._task is not None and self._task.cancel())
         self._thread.join()
         self._loop.close()

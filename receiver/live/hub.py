@@ -37,9 +37,11 @@ class Recorder(Protocol):
 
     def write(
         self, samples: list[Sample], rx: float | None = None, raws: Sequence[bytes | None] | None = None
-    ) -> None: ...
+    ) -> None:
+        """Buffer accepted samples (stamped with ``rx`` when given); ``raws`` are their bytes as received."""
 
-    def flush(self, now: float | None = None) -> bool: ...
+    def flush(self, now: float | None = None) -> bool:
+        """Push buffered lines on, at most once per flush interval of ``now``; True when it did."""
 
 
 # Listener(accepted samples with their source, latest pose per updated robot)
@@ -232,7 +234,7 @@ class Hub:
         ``Session.snapshot``): the receive loop never waits for a snapshot."""
         with self._state_lock:
             sessions = list(self.sessions.values())
-        return {s.robot: s.snapshot(now, self._state_lock, loop_stats) for s in sessions}
+        return {session.robot: session.snapshot(now, self._state_lock, loop_stats) for session in sessions}
 
     def history(self, robot: str, since_rx: float | None = None) -> dict[str, np.ndarray]:
         """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``);

@@ -60,25 +60,26 @@ class RawHistory:
     def __call__(self, accepted: list[tuple[Sample, str]], _updates: object = None) -> None:
         nan, robots = math.nan, self._robots
         with self._lock:
-            for s, _source in accepted:
-                raw = robots.get(s.robot)
-                if raw is None or raw.n_wheels != len(s.ticks):
+            for sample, _source in accepted:
+                raw = robots.get(sample.robot)
+                if raw is None or raw.n_wheels != len(sample.ticks):
                     # A new robot, or one the hub now expects another number
                     # of counts from: its old rows cannot share columns.
-                    raw = robots[s.robot] = _RobotRaw(len(s.ticks), self.window_s, self.max_rows)
+                    raw = robots[sample.robot] = _RobotRaw(len(sample.ticks), self.window_s, self.max_rows)
                 # the row, as _FLOAT_COLUMNS and then seq, reset and the counts (inline: this runs per sample)
-                pose = s.pose if s.pose is not None else _NAN3
+                pose = sample.pose if sample.pose is not None else _NAN3
                 pending = raw.pending
                 pending.floats += (
-                    nan if s.rx is None else s.rx, s.t, pose[0], pose[1], pose[2],
-                    nan if s.imu is None else s.imu, nan if s.loop is None else s.loop,
+                    nan if sample.rx is None else sample.rx, sample.t, pose[0], pose[1], pose[2],
+                    nan if sample.imu is None else sample.imu, nan if sample.loop is None else sample.loop,
                 )
                 ints = pending.ints
-                ints += (s.seq, s.reset, *s.ticks)
+                ints += (sample.seq, sample.reset, *sample.ticks)
                 if len(ints) >= pending.limit:
                     pending.flush()
 
     def robots(self) -> list[str]:
+        """The names of the robots heard, sorted."""
         with self._lock:
             return sorted(self._robots)
 
@@ -101,6 +102,6 @@ class RawHistory:
                 return None
             raw.pending.flush()
             held = raw.ring.cut(since_rx)
-        c = held.rows()  # after the lock: the receive loop's listener call never waits for this copy
-        return Columns(seq=c["seq"], t=c["t"], ticks=c["ticks"], pose=c["pose"], imu=c["imu"], loop=c["loop"],
-                       reset=c["reset"], rx=c["rx"])
+        rows = held.rows()  # after the lock: the receive loop's listener call never waits for this copy
+        return Columns(seq=rows["seq"], t=rows["t"], ticks=rows["ticks"], pose=rows["pose"], imu=rows["imu"],
+                       loop=rows["loop"], reset=rows["reset"], rx=rows["rx"])

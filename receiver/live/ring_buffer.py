@@ -3,12 +3,11 @@
 Owns the storage of a session's recent history as numpy columns, in blocks
 of a fixed number of rows. It grows by one block at a time and lets go of its
 oldest block once every row in it is outside the window, or past the row cap,
-so it never copies what it holds to grow: a buffer that doubled and copied
-stalled appends for 0.1 s at 600,000 rows, and every datagram waited behind
-it. A row, once written, is never written again (a block let go is left to
-the garbage collector, not reused), so a ``Cut`` taken under the owner's lock
-can be copied after the lock is released. It never reads a clock: times are
-the rows' own ``rx``.
+so it never copies what it holds to grow (a copy of a full window stalls
+every datagram behind it). A row, once written, is never written again (a
+block let go is left to the garbage collector, not reused), so a ``Cut``
+taken under the owner's lock can be copied after the lock is released. It
+never reads a clock: times are the rows' own ``rx``.
 """
 
 from __future__ import annotations
@@ -89,11 +88,11 @@ class RingBuffer:
         dtype, width = self.fields[name]
         return np.empty((rows,) if width is None else (rows, width), dtype=dtype)
 
-    def _drop(self, k: int) -> None:
-        """Forget the k oldest rows, and the blocks they leave empty. The next
-        row still goes after them: rows are never written twice."""
-        self._start += k
-        self._size -= k
+    def _drop(self, count: int) -> None:
+        """Forget the ``count`` oldest rows, and the blocks they leave empty. The
+        next row still goes after them: rows are never written twice."""
+        self._start += count
+        self._size -= count
         while self._start >= self._block_rows:
             self._blocks.popleft()
             self._start -= self._block_rows
@@ -170,7 +169,7 @@ class PendingRows:
     ``limit`` numbers or more, or before reading the ring: writing one row
     into numpy columns costs more than recomputing it, a few hundred at
     once cost little. Flat lists, not a tuple per row, because the garbage
-    collector tracks tuples (DEVELOPERS.md, "Why the live path looks so").
+    collector tracks tuples (DEVELOPERS.md, "Measurements behind the code").
     """
 
     def __init__(

@@ -41,6 +41,7 @@ class Pump:
         self._thread = threading.Thread(target=self._run, name="podwatch-pump", daemon=True)
 
     def start(self) -> None:
+        """Start the pump thread; ``stop`` ends it."""
         self._thread.start()
 
     def _run(self) -> None:
@@ -61,9 +62,8 @@ def settle_heap() -> None:
     For a receiver that has just started (imports, profiles, dashboard). A
     full collection walks every tracked object, and numpy, scipy and the
     dashboard leave tens of thousands that live as long as the process:
-    walking them took 20 to 140 ms here, a pause that every datagram
-    arriving meanwhile waits through (tests/bench/bench_udp.py). The
-    collect first frees start-up garbage instead of freezing it.
+    walking them is a pause that every datagram arriving meanwhile waits
+    through. The collect first frees start-up garbage instead of freezing it.
     """
     gc.collect()
     gc.freeze()
@@ -93,6 +93,11 @@ def default_recording_path(directory: Path = Path("recordings"), now: datetime |
 
 @dataclass
 class ServeConfig:
+    """What ``serve`` runs: profiles by robot name; the UDP and WebSocket listeners as
+    (host, port) and the MQTT broker as an mqtt:// URL (None: not used); forwarding,
+    the topic prefix, the WebSocket token and the recording path (None: no recording).
+    """
+
     profiles: dict[str, Profile] = field(default_factory=dict)
     udp: tuple[str, int] | None = None
     ws: tuple[str, int] | None = None
@@ -122,6 +127,9 @@ class LiveReceiver:
         self._mqtt_task: asyncio.Task | None = None
 
     async def start(self) -> None:
+        """Open the listeners, start the pump and say where each listens; a port that cannot
+        be bound is a UsageError. Call ``stop`` to end.
+        """
         cfg = self.config
         try:
             if cfg.udp is not None:
@@ -170,6 +178,9 @@ class LiveReceiver:
 
 
 def summary_lines(hub: Hub) -> list[str]:
+    """One line per robot, then one for refused messages by reason if any: what ``serve``
+    and ``replay`` print at the end.
+    """
     lines = []
     for robot, snap in hub.snapshot(time.time()).items():
         profile = hub.profiles.get(robot)

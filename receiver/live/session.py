@@ -39,12 +39,16 @@ ONE_BY_ONE_UP_TO = 32
 
 
 class LinkState(Enum):
+    """A robot's link as the page shows it; it moves only through TRANSITIONS."""
+
     WAITING = "waiting"  # declared by a profile, nothing heard yet
     LIVE = "live"
     QUIET = "quiet"  # heard before, silent for longer than quiet_after_s
 
 
 class LinkEvent(Enum):
+    """What moves a LinkState: data arrived, or silence past ``quiet_after_s``."""
+
     DATA = "data"
     SILENCE = "silence"
 

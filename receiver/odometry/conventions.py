@@ -63,8 +63,12 @@ class OneSample:
         self._y_sign = 1.0 if reported.y_axis == "left" else -1.0
 
     def to_rep103(self, pose: tuple[float, float, float]) -> tuple[float, float, float]:
+        """One reported pose (x, y, heading) -> REP 103, as ``reported_to_rep103``."""
         return pose[0], self._y_sign * pose[1], self._zero + self._turn * pose[2]
 
     def imu_heading_change(self, imu_now: float, imu_before: float) -> float:
+        """REP 103 heading change, radians, between two IMU readings in the robot's unit,
+        wrapped as ``imu_heading_change`` wraps it.
+        """
         # Python's % on floats is numpy's mod: the result takes the divisor's sign.
         return (self._turn * (imu_now - imu_before) + math.pi) % (2.0 * math.pi) - math.pi

@@ -21,6 +21,10 @@ CLOCK_BACK_TOLERANCE_S = 0.5
 
 
 class SampleKind(IntEnum):
+    """What an arriving sample means for the integration (``decide``); ACCEPTED kinds
+    give result rows, ANCHORS re-set the pose.
+    """
+
     FIRST = 0  # anchor: the first sample of a robot
     STEP = 1  # integrate the counts since the last accepted sample
     RESET = 2  # robot code set its pose: re-anchor at the reported pose

@@ -73,10 +73,16 @@ class Result:
 
     @property
     def position_error(self) -> np.ndarray:
+        """Distance (N,) between recomputed and reported positions, distance unit; NaN where
+        the robot sent no pose.
+        """
         return np.hypot(self.pose[:, 0] - self.reported[:, 0], self.pose[:, 1] - self.reported[:, 1])
 
     @property
     def heading_error(self) -> np.ndarray:
+        """Recomputed minus reported heading (N,), radians wrapped into (-pi, pi]; NaN where
+        the robot sent no pose.
+        """
         return wrap_angle(self.pose[:, 2] - self.reported[:, 2])
 
 
@@ -122,34 +128,38 @@ class Tracker:
 
     @property
     def started(self) -> bool:
+        """True once a sample has been accepted: the next ones are judged against it."""
         return self._last is not None
 
     def feed(self, cols: Columns) -> Result:
+        """Recompute the next piece of the robot's columns (arrival order, any length); returns
+        the accepted rows, with duplicate and late samples counted in ``dropped``.
+        """
         kinds_all = classify(cols.seq, cols.t, cols.reset, self._last)
         accepted = _IS_ACCEPTED[kinds_all]
         dropped = {
             "duplicate": int(np.count_nonzero(kinds_all == SampleKind.DUPLICATE)),
             "late": int(np.count_nonzero(kinds_all == SampleKind.LATE)),
         }
-        c = cols if accepted.all() else cols.take(np.flatnonzero(accepted))
+        accepted_cols = cols if accepted.all() else cols.take(np.flatnonzero(accepted))
         kinds = kinds_all[accepted]
-        n = len(c)
+        n = len(accepted_cols)
         if n == 0:
             return self._empty(dropped)
         is_anchor = _IS_ANCHOR[kinds]
 
-        dcounts = np.empty_like(c.ticks)
-        dcounts[1:] = count_change(c.ticks[1:], c.ticks[:-1])
-        dcounts[0] = 0 if self._last_ticks is None else count_change(c.ticks[0], self._last_ticks)
+        dcounts = np.empty_like(accepted_cols.ticks)
+        dcounts[1:] = count_change(accepted_cols.ticks[1:], accepted_cols.ticks[:-1])
+        dcounts[0] = 0 if self._last_ticks is None else count_change(accepted_cols.ticks[0], self._last_ticks)
         dcounts[is_anchor] = 0
         dth_imu = None
         if self.profile.uses_imu:
-            prev_imu = np.concatenate([[self._last_imu], c.imu[:-1]])
-            dth_imu = imu_heading_change(c.imu, prev_imu, self.profile.reported)
+            prev_imu = np.concatenate([[self._last_imu], accepted_cols.imu[:-1]])
+            dth_imu = imu_heading_change(accepted_cols.imu, prev_imu, self.profile.reported)
         deltas = self.kinematics.body_delta(self.kinematics.travel(dcounts), dth_imu)
         deltas[is_anchor] = 0.0
 
-        reported = reported_to_rep103(c.pose, self.profile.reported)
+        reported = reported_to_rep103(accepted_cols.pose, self.profile.reported)
         # Anchors re-set the pose to the reported one; a first sample without a
         # pose anchors at the origin, a reset or restart without one carries on.
         anchor_at = np.flatnonzero(is_anchor)
@@ -160,13 +170,13 @@ class Tracker:
         keep = has_pose | first_without
         poses = integrate(deltas, self.pose, self.method, anchor_at[keep], anchor_pose[keep])
 
-        loop_s = loop_periods(kinds, c.seq, c.t, c.loop, self._last)
+        loop_s = loop_periods(kinds, accepted_cols.seq, accepted_cols.t, accepted_cols.loop, self._last)
 
         self.pose = tuple(poses[-1].tolist())
-        self._last = (int(c.seq[-1]), float(c.t[-1]))
-        self._last_ticks = tuple(c.ticks[-1].tolist())
-        self._last_imu = float(c.imu[-1])
-        return Result(c.seq, c.t, c.rx, kinds, poses, reported, loop_s, dropped)
+        self._last = (int(accepted_cols.seq[-1]), float(accepted_cols.t[-1]))
+        self._last_ticks = tuple(accepted_cols.ticks[-1].tolist())
+        self._last_imu = float(accepted_cols.imu[-1])
+        return Result(accepted_cols.seq, accepted_cols.t, accepted_cols.rx, kinds, poses, reported, loop_s, dropped)
 
     def feed_one(self, sample) -> Step:
         """One sample (a ``protocol.Sample`` or anything with its fields).

@@ -85,6 +85,9 @@ class FigureEight:
     ramp: float = 1.0
 
     def twist(self, tau: np.ndarray) -> np.ndarray:
+        """Body twist (..., 3) at times tau (...), s since the start: forward speed in in/s,
+        no sideways speed, turn rate in rad/s.
+        """
         tau = np.asarray(tau, dtype=float)
         v = self.speed * np.sin(0.5 * np.pi * np.clip(tau / self.ramp, 0.0, 1.0)) ** 2
         omega = 2.0 * np.pi / self.period
@@ -119,9 +122,13 @@ class Wander:
 
     @property
     def start(self) -> tuple[float, float, float]:
+        """The pose at time 0: x, y in inches, heading in radians, field frame."""
         return tuple(float(v) for v in self.field_pose(np.zeros(1))[0])
 
     def twist(self, tau: np.ndarray) -> np.ndarray:
+        """Body twist (..., 3) at times tau (...), s: the field velocity seen from the body,
+        in/s and rad/s.
+        """
         tau = np.asarray(tau, dtype=float)
         _, vx = self._value_rate(self.x, tau)
         _, vy = self._value_rate(self.y, tau)

@@ -42,10 +42,12 @@ def parse_mqtt_url(url: str) -> tuple[str, int]:
 
 
 def samples_topic(prefix: str, robot: str) -> str:
+    """The topic a robot's samples arrive on: <prefix>/<robot>/samples (robot "+" for all)."""
     return f"{prefix}/{robot}/samples"
 
 
 def pose_topic(prefix: str, robot: str) -> str:
+    """The topic a robot's recomputed pose is forwarded on: <prefix>/<robot>/pose."""
     return f"{prefix}/{robot}/pose"
 
 
@@ -101,8 +103,8 @@ class MqttLink:
             return
         encode = self._encoder.encode
         encoded = [
-            (s.robot, encode(s) if raw is None else raw.strip())
-            for (s, source), raw in zip(accepted, raws)
+            (sample.robot, encode(sample) if raw is None else raw.strip())
+            for (sample, source), raw in zip(accepted, raws)
             if source != SOURCE
         ]
         self._loop.call_soon_threadsafe(self._queue, encoded, updates)
@@ -113,6 +115,9 @@ class MqttLink:
         self._poses.update(updates)
 
     async def run(self) -> None:
+        """Connect, subscribe and ingest (and forward) until cancelled; after a broker error
+        it reconnects every RECONNECT_DELAY_S.
+        """
         self._loop = asyncio.get_running_loop()
         while True:
             try:

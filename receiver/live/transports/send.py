@@ -25,7 +25,10 @@ SCHEMES = ("udp", "ws", "mqtt")
 
 
 class Sender(Protocol):
-    async def send(self, payload: bytes, robot: str) -> None: ...
+    """What a sender of every transport offers: ``await send(payload, robot)``."""
+
+    async def send(self, payload: bytes, robot: str) -> None:
+        """Send ``payload`` (wire JSON) as one datagram, frame or publish; ``robot`` picks the MQTT topic."""
 
 
 class UdpSender:
@@ -42,9 +45,11 @@ class UdpSender:
         self.sock.sendto(payload, self.address)
 
     async def send(self, payload: bytes, robot: str) -> None:
+        """One datagram to the address; ``robot`` is not used."""
         self.sock.sendto(payload, self.address)
 
     def close(self) -> None:
+        """Close the socket."""
         self.sock.close()
 
 
@@ -55,6 +60,7 @@ class WebSocketSender:
         self.connection = connection
 
     async def send(self, payload: bytes, robot: str) -> None:
+        """One text frame; ``robot`` is not used."""
         await self.connection.send(payload, text=True)
 
 
@@ -71,6 +77,7 @@ class MqttSender:
         self.qos = qos
 
     async def send(self, payload: bytes, robot: str) -> None:
+        """Publish to the robot's samples topic; at QoS 1 it returns once the broker has it."""
         await self.client.publish(samples_topic(self.prefix, robot), payload, qos=self.qos)
 
 

@@ -2,22 +2,16 @@
 
 Owns the UDP socket and nothing else: bytes in,
 ``protocol.decode_keeping_raw``, then ``Hub.ingest``. A plain loop with a
-large kernel buffer is used instead of an asyncio datagram endpoint because
-it kept up with about twice the rate on these machines (DESIGN.md,
-"Measured"). The loop takes whatever datagrams have arrived, then runs
-``Hub.process`` on them itself: handing each datagram to the pump thread
-instead cost a GIL hand-over per datagram, and at 20,000 datagrams/s the two
-threads spent more time waiting for each other than working
-(tests/bench/bench_udp.py). It never parses JSON itself and never lets a bad
-datagram stop the loop.
+large kernel buffer, not an asyncio datagram endpoint, for throughput; it
+takes whatever datagrams have arrived and runs ``Hub.process`` on them
+itself, sparing a GIL hand-over to the pump thread per datagram. It never
+parses JSON itself and never lets a bad datagram stop the loop.
 
-System calls are the dearest part of a small pass (2.5 to 5 us each on these
-machines): the loop waits in a blocking receive rather than in select, and
-takes whatever else has arrived with non-blocking receives (MSG_DONTWAIT,
-POSIX, as is the rest of ``serve``: its signal handling). It does not sleep
-after a short pass to let more datagrams gather: that cut the wake-ups, but
-under load the sleeps woke late, and at 10,000 datagrams/s with a load
-average of 5 the socket's buffer overflowed (tests/bench/bench_udp.py).
+System calls are the dearest part of a small pass: the loop waits in a
+blocking receive rather than in select, and takes whatever else has arrived
+with non-blocking receives (MSG_DONTWAIT, POSIX, as is the rest of ``serve``:
+its signal handling). It never sleeps to let datagrams gather: under load
+such sleeps wake late and the socket's buffer overflows.
 """
 
 from __future__ import annotations
@@ -62,9 +56,13 @@ class UdpReceiver:
 
     @property
     def address(self) -> tuple[str, int]:
+        """The (host, port) the socket is bound to: the real port when 0 was asked for."""
         return self.sock.getsockname()
 
     def start(self) -> None:
+        """Lower the GIL switch interval to GIL_SWITCH_INTERVAL_S and start the receive loop's
+        thread; ``stop`` ends it.
+        """
         sys.setswitchinterval(min(sys.getswitchinterval(), GIL_SWITCH_INTERVAL_S))
         self._thread.start()
 

@@ -49,10 +49,12 @@ class WebSocketReceiver:
 
     @property
     def address(self) -> tuple[str, int]:
+        """The (host, port) the server listens on; only after ``start``."""
         assert self._server is not None
         return next(iter(self._server.sockets)).getsockname()[:2]
 
     async def start(self) -> None:
+        """Start serving in the running event loop; with a token set, clients without it are refused."""
         self._server = await serve(
             self._handle,
             self.host,
@@ -62,6 +64,7 @@ class WebSocketReceiver:
         )
 
     async def stop(self) -> None:
+        """Close the server and its connections, and wait until they are closed."""
         if self._server is not None:
             self._server.close()
             await self._server.wait_closed()
