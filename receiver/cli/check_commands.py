@@ -28,7 +28,7 @@ from receiver.analysis.wording import (
     explanation_id,
     guided_outcome,
 )
-from receiver.cli.common import counts_per_message, load_profiles, warn
+from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, warn
 from receiver.errors import UsageError
 from receiver.formats.profile_toml import write_profile
 from receiver.formats.recording import read_recording
@@ -39,10 +39,10 @@ from receiver.odometry.robot import Profile
 def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Profile]]:
     """(robot, columns, profile) for each robot to check; ``one`` insists on a single robot."""
     cli_profiles = load_profiles(args.profile)
-    data = read_recording(args.recording, counts_per_message(cli_profiles))
+    data = read_recording(args.recording, counts_per_message(edit_profiles(cli_profiles, args.set)))
     for warning in data.warnings:
         warn(warning)
-    profiles = {**data.profiles, **cli_profiles}
+    profiles = edit_profiles({**data.profiles, **cli_profiles}, args.set)
     if args.robot is not None:
         if args.robot not in data.robots:
             raise UsageError(f"{args.recording}: no robot {args.robot!r} in it (it has {', '.join(sorted(data.robots))})")
@@ -183,6 +183,7 @@ def _common(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--robot", metavar="NAME", help="check only this robot of the recording")
     parser.add_argument("--json", action="store_true", help="print one JSON object instead of text")
     parser.add_argument("--write-profile", metavar="FILE", help="write the corrected profile here (TOML)")
+    add_set_option(parser)
 
 
 def add_check_commands(sub: argparse._SubParsersAction) -> None:

@@ -14,7 +14,7 @@ from collections import Counter
 
 import numpy as np
 
-from receiver.cli.common import counts_per_message, load_profiles, warn
+from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, warn
 from receiver.errors import UsageError
 from receiver.formats import block_decoder, csv_writer
 from receiver.formats.profile_toml import load_profile
@@ -126,10 +126,10 @@ def cmd_recompute(args: argparse.Namespace) -> int:
     trackers: dict[str, Tracker | None] = {}
     totals: dict[str, _RobotTotals] = {}
     out = open(args.out, "wb") if args.out else sys.stdout.buffer
-    lengths = counts_per_message(cli_profiles)
+    lengths = counts_per_message(edit_profiles(cli_profiles, args.set))
     try:
         with block_decoder.worker_pool(args.recording) as pool, RecordingStream(args.recording, lengths, progress, pool) as rec:
-            profiles = {**rec.profiles, **cli_profiles}
+            profiles = edit_profiles({**rec.profiles, **cli_profiles}, args.set)
             out.write(CSV_HEADER)
             for robot, columns in rec:
                 if robot not in trackers:
@@ -193,6 +193,7 @@ def add_offline_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--profile", action="append", metavar="P", help="robot profile TOML (repeat for several robots)")
     p.add_argument("--method", default="arc", help="integration method: arc (default), midpoint or euler")
     p.add_argument("--out", metavar="CSV", help="write the CSV here instead of standard output")
+    add_set_option(p)
     p.set_defaults(run=cmd_recompute)
 
     p = sub.add_parser("simulate", help="a simulated robot that writes a recording")
