@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from receiver.formats.profile_set import edited_profile
 from receiver.formats.profile_toml import load_profile
 from receiver.formats.recording_writer import RecordingWriter
 from receiver.odometry.faults import parse_faults
@@ -39,7 +40,22 @@ FIXTURES = [
         {"near_wrap": True},
     ),
     ("practice-bot-guided.jsonl.gz", "practice-bot.toml", "guided", 15.0, [], {}),
+    # The drive of the reversed-right fixture after the fix in the robot code,
+    # and the same drive recorded with a profile that has the forward wheels
+    # 12.9 in apart instead of 12.5 (HEADER_SETTINGS): for `compare`.
+    ("practice-bot-figure-eight.jsonl.gz", "practice-bot.toml", "figure-eight", 10.0, [], {}),
+    ("practice-bot-figure-eight-wide-track.jsonl.gz", "practice-bot.toml", "figure-eight", 10.0, [], {}),
 ]
+# Fixtures whose header declares a profile other than the simulated robot's:
+# the `--set` settings that turn the robot's profile into the declared one.
+HEADER_SETTINGS = {
+    "practice-bot-figure-eight-wide-track.jsonl.gz": ("wheel.left.y=6.45", "wheel.right.y=-6.45"),
+}
+
+
+def header_profile(name: str, profile):
+    """The profile a fixture's header declares: the simulated robot's, with HEADER_SETTINGS made."""
+    return edited_profile(profile, HEADER_SETTINGS.get(name, ()), source=name)
 
 
 def main() -> None:
@@ -47,7 +63,7 @@ def main() -> None:
         profile = load_profile(HERE / profile_file)
         run = simulate(profile, path, 100.0, seconds, 1, parse_faults(fault_specs, profile), **options)
         out = HERE / name
-        with RecordingWriter(out, [profile], created=CREATED) as writer:
+        with RecordingWriter(out, [header_profile(name, profile)], created=CREATED) as writer:
             writer.write(run.stamp_rx(WALL_START_S))
         print(f"{name}: {len(run.samples)} messages, {out.stat().st_size / 1024:.0f} KB")
 

@@ -53,14 +53,15 @@ def test_fixture_reads_and_matches_the_simulator(fixture) -> None:
     data = read_recording(file)
     assert data.warnings == []
     profile = load_profile(FIXTURES / profile_file)
-    assert data.profiles == {profile.name: profile}
+    declared = regenerate.header_profile(name, profile)
+    assert data.profiles == {profile.name: declared}
     cols = data.robots[profile.name]
 
     run = fixture_run(fixture, profile)
     assert differences(cols, run) == [], f"{name} is out of date: run replay_fixtures/regenerate.py"
 
-    result = Tracker(profile).feed(cols)
-    if any(spec.startswith("reversed") for spec in fault_specs):
+    result = Tracker(declared).feed(cols)
+    if any(spec.startswith("reversed") for spec in fault_specs) or declared != profile:
         assert result.position_error.max() > 5.0
     else:
         assert result.position_error.max() < 1e-3 * (25.4 if profile.distance_unit == "mm" else 1.0)

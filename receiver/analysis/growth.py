@@ -1,0 +1,126 @@
+"""How fast the disagreement grows, and the disagreement against distance driven.
+
+Owns the one definition of growth that the command line and the page quote:
+the change of the disagreement per metre driven and per turn turned, over a
+stated stretch (from the last re-anchor to the last compared sample), only
+once the robot has driven or turned enough for a rate to mean something.
+Pure numpy over recompute rows; never recomputes a pose and never reads a file.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from receiver.odometry.counts import ANCHORS
+
+# The least driving and turning over which a rate is quoted. Over a shorter
+# stretch the ratio says more about how the drive began (a push off the
+# start line, the first loops' rounding) than about a rate that carries on:
+# half a metre is most of a 24 in field tile (common practice), a quarter
+# turn the smallest turn of a typical routine. Our choice, not a standard.
+MIN_TRAVEL_M = 0.5
+MIN_TURNS = 0.25
+_ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
+
+
+def step_motion(pose: np.ndarray, kind: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(distance (N,), |turn| (N,)) the recompute moved from the row before to each row:
+    profile unit and radians; 0 at the first row and at re-anchors (a jump, not motion)."""
+    distance = np.zeros(len(pose))
+    turn = np.zeros(len(pose))
+    if len(pose) > 1:
+        step = np.diff(pose, axis=0)
+        distance[1:] = np.hypot(step[:, 0], step[:, 1])
+        turn[1:] = np.abs(step[:, 2])
+        jump = np.isin(kind, _ANCHOR_KINDS)
+        distance[jump] = 0.0
+        turn[jump] = 0.0
+    return distance, turn
+
+
+@dataclass(frozen=True)
+class Growth:
+    """The disagreement's growth over rows ``start`` to ``end`` (inclusive).
+
+    ``position_per_m``: change of the position error per metre the recompute
+    drove (profile unit per metre); NaN under MIN_TRAVEL_M. ``heading_per_turn_deg``:
+    change of the heading error (recomputed minus reported, unwrapped, signed:
+    positive when the recompute turned further counter-clockwise) per turn of
+    the recompute (degrees per turn); NaN under MIN_TURNS. ``from_anchor`` is
+    False when the rows given begin after the last re-anchor (a page's window):
+    the stretch then begins at the first row given.
+    """
+
+    position_per_m: float
+    heading_per_turn_deg: float
+    distance_m: float
+    turns: float
+    start: int
+    end: int
+    from_anchor: bool
+
+
+def growth(
+    pose: np.ndarray,
+    position_error: np.ndarray,
+    heading_error: np.ndarray,
+    kind: np.ndarray,
+    metres_per_unit: float,
+) -> Growth:
+    """Growth of the disagreement since the last re-anchor, for rows in time order.
+
+    ``pose`` (N, 3): recomputed REP 103 poses, continuous heading (rad);
+    ``position_error`` (N,) profile unit and ``heading_error`` (N,) wrapped
+    radians, NaN where the robot sent no pose; ``kind`` (N,) counts.SampleKind;
+    ``metres_per_unit``: robot.METRES_PER_UNIT of the profile's unit.
+    """
+    nan = math.nan
+    compared = np.flatnonzero(np.isfinite(position_error))
+    if not len(compared):
+        return Growth(nan, nan, 0.0, 0.0, 0, 0, False)
+    end = int(compared[-1])
+    anchors = np.flatnonzero(np.isin(kind[: end + 1], _ANCHOR_KINDS))
+    from_anchor = bool(len(anchors))
+    begin = int(anchors[-1]) if from_anchor else 0
+    start = int(compared[np.searchsorted(compared, begin)])
+    distance, turn = step_motion(pose[start : end + 1], kind[start : end + 1])
+    distance_m = float(distance[1:].sum()) * metres_per_unit
+    turns = float(turn[1:].sum()) / (2.0 * math.pi)
+    per_m = nan
+    if distance_m >= MIN_TRAVEL_M:
+        per_m = float(position_error[end] - position_error[start]) / distance_m
+    per_turn = nan
+    if turns >= MIN_TURNS:
+        heading = heading_error[start : end + 1]
+        unwrapped = np.unwrap(heading[np.isfinite(heading)])
+        per_turn = math.degrees(float(unwrapped[-1] - unwrapped[0])) / turns
+    return Growth(per_m, per_turn, distance_m, turns, start, end, from_anchor)
+
+
+@dataclass(frozen=True)
+class DistanceCurve:
+    """The disagreement against distance driven, for overlaying runs: each (N,).
+
+    ``distance_m`` is the recompute's path length since the first row, metres
+    (re-anchor jumps add nothing); ``position_error`` in the profile's unit,
+    ``heading_error_deg`` in degrees; NaN where the robot sent no pose.
+    """
+
+    distance_m: np.ndarray
+    position_error: np.ndarray
+    heading_error_deg: np.ndarray
+
+
+def disagreement_by_distance(
+    pose: np.ndarray,
+    position_error: np.ndarray,
+    heading_error: np.ndarray,
+    kind: np.ndarray,
+    metres_per_unit: float,
+) -> DistanceCurve:
+    """The disagreement against distance driven; arguments as for ``growth``."""
+    distance, _ = step_motion(pose, kind)
+    return DistanceCurve(np.cumsum(distance) * metres_per_unit, position_error, np.degrees(heading_error))
