@@ -3,7 +3,7 @@
 Every command exits non-zero with one line on bad input; no traceback is
 shown for an error podwatch expected (a PodwatchError), nor for a system
 error (a file, a port) it did not. The commands live in
-offline_commands.py, check_commands.py and live_commands.py.
+offline_commands.py, check_commands.py, compare_command.py and live_commands.py.
 """
 
 from __future__ import annotations
@@ -14,6 +14,7 @@ from typing import Sequence
 
 from receiver import __version__
 from receiver.cli.check_commands import add_check_commands
+from receiver.cli.compare_command import add_compare_command
 from receiver.cli.live_commands import add_live_commands
 from receiver.cli.offline_commands import add_offline_commands
 from receiver.errors import PodwatchError
@@ -29,6 +30,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     add_offline_commands(sub)
     add_check_commands(sub)
+    add_compare_command(sub)
     add_live_commands(sub)
     return parser
 
