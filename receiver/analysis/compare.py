@@ -86,7 +86,7 @@ def row_from_result(result: Result, profile: Profile, robot: str | None = None) 
     """The row of a run already recomputed (``Tracker(profile).feed(columns)``)."""
     nan = math.nan
     kind = result.kind
-    distance, turn = step_motion(result.pose, kind)
+    steps = distance, turn = step_motion(result.pose, kind)
     dt = np.diff(result.t)
     duration_s = float(dt[kind[1:] != SampleKind.RESTART].sum()) if len(dt) else 0.0
     position, heading = result.position_error, result.heading_error
@@ -104,7 +104,7 @@ def row_from_result(result: Result, profile: Profile, robot: str | None = None) 
         final_heading_deg=nan if last is None else math.degrees(float(heading[last])),
         worst_position=nan if last is None else float(np.nanmax(position)),
         worst_heading_deg=nan if last is None else math.degrees(float(np.nanmax(np.abs(heading)))),
-        growth=growth(result.pose, position, heading, kind, METRES_PER_UNIT[profile.distance_unit]),
+        growth=growth(result.pose, position, heading, kind, METRES_PER_UNIT[profile.distance_unit], steps),
         loop_mean_s=float(loop.mean()) if len(loop) else nan,
         loop_p95_s=float(np.percentile(loop, 95)) if len(loop) else nan,
     )

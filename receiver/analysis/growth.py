@@ -29,16 +29,29 @@ _ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
 def step_motion(pose: np.ndarray, kind: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(distance (N,), |turn| (N,)) the recompute moved from the row before to each row:
     profile unit and radians; 0 at the first row and at re-anchors (a jump, not motion)."""
-    distance = np.zeros(len(pose))
-    turn = np.zeros(len(pose))
-    if len(pose) > 1:
-        step = np.diff(pose, axis=0)
-        distance[1:] = np.hypot(step[:, 0], step[:, 1])
-        turn[1:] = np.abs(step[:, 2])
+    n = len(pose)
+    distance = np.zeros(n)
+    turn = np.zeros(n)
+    if n > 1:
+        # Column by column, and a square root rather than np.hypot: a third of the time.
+        dx = pose[1:, 0] - pose[:-1, 0]
+        dy = pose[1:, 1] - pose[:-1, 1]
+        np.sqrt(dx * dx + dy * dy, out=distance[1:])
+        np.abs(pose[1:, 2] - pose[:-1, 2], out=turn[1:])
         jump = np.isin(kind, _ANCHOR_KINDS)
         distance[jump] = 0.0
         turn[jump] = 0.0
     return distance, turn
+
+
+def _turned(angle: np.ndarray) -> float:
+    """The change of a wrapped angle from its first to its last value, following it through
+    the wraps (each step taken the short way, as np.unwrap does)."""
+    step = np.diff(angle)
+    step += math.pi
+    np.mod(step, 2.0 * math.pi, out=step)
+    step -= math.pi
+    return float(step.sum())
 
 
 @dataclass(frozen=True)
@@ -69,13 +82,15 @@ def growth(
     heading_error: np.ndarray,
     kind: np.ndarray,
     metres_per_unit: float,
+    steps: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> Growth:
     """Growth of the disagreement since the last re-anchor, for rows in time order.
 
     ``pose`` (N, 3): recomputed REP 103 poses, continuous heading (rad);
     ``position_error`` (N,) profile unit and ``heading_error`` (N,) wrapped
     radians, NaN where the robot sent no pose; ``kind`` (N,) counts.SampleKind;
-    ``metres_per_unit``: robot.METRES_PER_UNIT of the profile's unit.
+    ``metres_per_unit``: robot.METRES_PER_UNIT of the profile's unit;
+    ``steps``: ``step_motion(pose, kind)`` when the caller has it already.
     """
     nan = math.nan
     compared = np.flatnonzero(np.isfinite(position_error))
@@ -86,17 +101,17 @@ def growth(
     from_anchor = bool(len(anchors))
     begin = int(anchors[-1]) if from_anchor else 0
     start = int(compared[np.searchsorted(compared, begin)])
-    distance, turn = step_motion(pose[start : end + 1], kind[start : end + 1])
-    distance_m = float(distance[1:].sum()) * metres_per_unit
-    turns = float(turn[1:].sum()) / (2.0 * math.pi)
+    distance, turn = steps if steps is not None else step_motion(pose, kind)
+    # The rows after the stretch's first: no re-anchor among them, by the choice of start.
+    distance_m = float(distance[start + 1 : end + 1].sum()) * metres_per_unit
+    turns = float(turn[start + 1 : end + 1].sum()) / (2.0 * math.pi)
     per_m = nan
     if distance_m >= MIN_TRAVEL_M:
         per_m = float(position_error[end] - position_error[start]) / distance_m
     per_turn = nan
     if turns >= MIN_TURNS:
         heading = heading_error[start : end + 1]
-        unwrapped = np.unwrap(heading[np.isfinite(heading)])
-        per_turn = math.degrees(float(unwrapped[-1] - unwrapped[0])) / turns
+        per_turn = math.degrees(_turned(heading[np.isfinite(heading)])) / turns
     return Growth(per_m, per_turn, distance_m, turns, start, end, from_anchor)
 
 
@@ -120,7 +135,8 @@ def disagreement_by_distance(
     heading_error: np.ndarray,
     kind: np.ndarray,
     metres_per_unit: float,
+    steps: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> DistanceCurve:
     """The disagreement against distance driven; arguments as for ``growth``."""
-    distance, _ = step_motion(pose, kind)
+    distance, _ = steps if steps is not None else step_motion(pose, kind)
     return DistanceCurve(np.cumsum(distance) * metres_per_unit, position_error, np.degrees(heading_error))

@@ -19,7 +19,7 @@ import numpy as np
 from receiver.analysis.growth import step_motion
 from receiver.odometry.columns import Columns
 from receiver.odometry.counts import SampleKind
-from receiver.odometry.recompute import Tracker
+from receiver.odometry.recompute import Result, Tracker
 from receiver.odometry.robot import METRES_PER_UNIT, Profile
 
 # Bin edges of the step period, s: fine where control loops usually run
@@ -106,10 +106,14 @@ def loop_cost_bins(
     return LoopCostBins(edges, steps, travel, euler, midpoint)
 
 
-def loop_cost(columns: Columns, profile: Profile, edges_s: Sequence[float] = DEFAULT_BIN_EDGES_S) -> LoopCost:
-    """Recompute one robot's columns with euler, midpoint and arc and compare them to the arc."""
-    poses = {method: Tracker(profile, method).feed(columns) for method in ("arc", "euler", "midpoint")}
-    arc = poses["arc"]
+def loop_cost(
+    columns: Columns, profile: Profile, edges_s: Sequence[float] = DEFAULT_BIN_EDGES_S, arc: Result | None = None
+) -> LoopCost:
+    """Recompute one robot's columns (a whole run) with euler, midpoint and arc and compare
+    them to the arc; ``arc``: ``Tracker(profile).feed(columns)`` when the caller has it already."""
+    if arc is None:
+        arc = Tracker(profile, "arc").feed(columns)
+    poses = {method: Tracker(profile, method).feed(columns) for method in ("euler", "midpoint")}
     anchor = arc.kind != SampleKind.STEP
     step_s = np.full(len(arc.t), np.nan)
     step_s[1:] = np.diff(arc.t)

@@ -34,6 +34,7 @@ import pytest
 from receiver.analysis.loop_cost import DEFAULT_BIN_EDGES_S, loop_cost, loop_cost_bins
 from receiver.odometry.columns import Columns
 from receiver.odometry.profile_edit import Edit, apply_edits
+from receiver.odometry.recompute import Tracker
 
 INCH_M = 0.0254  # SI: 1 in = 0.0254 m exactly
 V_IN_S = 20.0
@@ -81,7 +82,8 @@ def constant_twist(profile, periods_s):
 
 def test_the_gap_over_time_follows_the_closed_form(fine_profile):
     dt, steps = 0.03, 500
-    cost = loop_cost(constant_twist(fine_profile, [dt] * steps), fine_profile)
+    columns = constant_twist(fine_profile, [dt] * steps)
+    cost = loop_cost(columns, fine_profile)
     s, q = V_IN_S * dt, W_RAD_S * dt
     k = np.arange(steps + 1)
     turned = np.abs(np.sin(k * q / 2) / math.sin(q / 2))
@@ -93,6 +95,9 @@ def test_the_gap_over_time_follows_the_closed_form(fine_profile):
     assert cost.euler_step[0] == 0.0 and math.isnan(cost.step_s[0])
     np.testing.assert_allclose(cost.step_s[1:], dt, rtol=1e-9)
     assert cost.unit == "in"
+    # Given the arc recompute the page already has, the same answer.
+    again = loop_cost(columns, fine_profile, arc=Tracker(fine_profile).feed(columns))
+    np.testing.assert_array_equal(again.euler_gap, cost.euler_gap)
 
 
 def test_binned_by_loop_period_per_metre(fine_profile):
