@@ -54,6 +54,28 @@ def test_recompute_example_prints_what_the_readme_shows(tmp_path, monkeypatch, c
     assert (tmp_path / "poses.csv").read_text().splitlines()[:3] == _example("head -3 poses.csv")
 
 
+@pytest.mark.parametrize(
+    "command",
+    [c for c in COMMANDS if c.startswith("podwatch recompute replay_fixtures/practice-bot-figure-eight-wide-track")],
+)
+def test_set_examples_print_what_the_readme_shows(tmp_path, monkeypatch, capsys, command):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "replay_fixtures").symlink_to(FIXTURES)
+    assert main(shlex.split(command)[1:]) == 0
+    assert capsys.readouterr().err.splitlines() == _example(command)
+
+
+def test_there_are_set_examples():
+    assert sum("--set" in c for c in COMMANDS if c.startswith("podwatch recompute")) >= 1
+
+
+def test_compare_example_prints_what_the_readme_shows(monkeypatch, capsys):
+    monkeypatch.chdir(ROOT)
+    command = next(c for c in COMMANDS if c.startswith("podwatch compare "))
+    assert main(shlex.split(command)[1:]) == 0
+    assert capsys.readouterr().out.splitlines() == _example(command)
+
+
 def test_diagnose_example_prints_what_the_readme_shows(monkeypatch, capsys):
     monkeypatch.chdir(ROOT)
     command = "podwatch diagnose replay_fixtures/practice-bot-figure-eight-reversed-right.jsonl.gz"

@@ -1,7 +1,8 @@
 """``podwatch compare``: several recordings of the same robot side by side, one row each.
 
 Owns the command's options, which robots of each recording get a row, and
-the plain-text table and JSON object; the rows are analysis/compare.py's.
+the plain-text table and JSON object; it never computes a number itself
+(the rows are analysis/compare.py's).
 program.py registers it with ``add_compare_command``.
 """
 

@@ -7,6 +7,7 @@ raises one-line errors; the layers above assume valid data.
 What the layers above use:
 - protocol: ``decode``, ``decode_keeping_raw``, ``decode_message``, ``encode``, ``Sample``, ``Failure``, ``Reason``, ``PoseMessage``
 - profile_toml: ``load_profile``, ``profile_from_table``, ``profile_to_table``, ``write_profile``
+- profile_set: ``edited_profile``, ``parse_setting``, ``parse_edit``, ``edits_as_text`` (`--set KEY=VALUE` text)
 - recording: ``read_recording``, ``RecordingStream``, ``RecordingData``
 - recording_writer: ``RecordingWriter``
 - block_decoder: ``worker_pool`` (large files on two cores); csv_writer: ``write``

@@ -11,4 +11,6 @@ What the layers above use:
 - conventions: ``reported_to_rep103``, ``rep103_to_reported``, ``imu_heading_change``
 - counts: ``SampleKind``, ``classify``, ``count_change``, ``ACCEPTED``, ``ANCHORS``
 - faults: ``Faults``, ``parse_faults``, ``robot_code_profile`` (the model of convention mistakes)
+- profile_edit: ``Edit``, ``apply_edits``, ``PROFILE_SETTINGS``, ``WHEEL_SETTINGS``, ``profile_values``,
+  ``differing_values``, ``edits_between`` (the `--set` keys and their checks)
 """

@@ -4,7 +4,8 @@ Owns the editable keys of a profile in the one syntax `--set` and the page's
 editor share ("name", "distance_unit", "imu.mode", "reported.heading_unit",
 "wheel.right.x", ...), the typed ``Edit``, applying edits with their checks
 (one ``ProfileError`` naming the key), and the keys in which profiles differ.
-Pure: profiles in, profiles out. Reading KEY=VALUE text is formats/profile_set.py.
+Pure: profiles in, profiles out; it never reads text or a file (KEY=VALUE
+text is formats/profile_set.py, the TOML file formats/profile_toml.py).
 """
 
 from __future__ import annotations
