@@ -4,10 +4,14 @@ name the key and what it may hold."""
 from __future__ import annotations
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from receiver.errors import ProfileError
 from receiver.formats.profile_set import edited_profile, edits_as_text, parse_edit, parse_setting
-from receiver.odometry.profile_edit import Edit, apply_edits, edits_between
+from receiver.formats.profile_toml import load_profile
+from receiver.odometry.profile_edit import Edit, apply_edits, edits_between, show_value
+from tests.conftest import FIXTURES
 
 
 @pytest.mark.parametrize(
@@ -96,3 +100,11 @@ def test_edits_as_text_read_back(practice_profile):
     assert "wheel.back.name=rear" in texts and "wheel.rear.x=-10.414" in texts
     assert edited_profile(practice_profile, texts) == after == apply_edits(practice_profile, edits)
     assert edited_profile(practice_profile, edits_as_text(practice_profile, edits_between(practice_profile, practice_profile))) == practice_profile
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.floats(allow_nan=False, allow_infinity=False))
+def test_any_number_shown_reads_back_exactly(value):
+    # A number the page shows (or edits_as_text writes) is the number `--set` reads.
+    profile = load_profile(FIXTURES / "practice-bot.toml")
+    assert parse_setting(profile, f"wheel.left.x={show_value(value)}") == Edit("x", value, 0)
