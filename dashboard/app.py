@@ -10,7 +10,7 @@ from pathlib import Path
 
 from dash import Dash
 
-from dashboard import callbacks, diagnosis_panel, layout
+from dashboard import callbacks, diagnosis_panel, layout, recording_opener
 from dashboard.settings import Settings
 from dashboard.sources import Station
 
@@ -18,8 +18,8 @@ ASSETS = Path(__file__).resolve().parent / "assets"
 
 
 def create_app(station: Station, settings: Settings = Settings()) -> Dash:
-    """A new Dash app showing ``station``: the layout, the views' callbacks and the
-    diagnosis panels. Serve its ``.server`` (``server.start_dashboard`` does).
+    """A new Dash app showing ``station``: the layout, the views' callbacks, the
+    diagnosis panels and the recording opener. Serve its ``.server`` (``server.start_dashboard`` does).
     """
     app = Dash(
         __name__,
@@ -31,4 +31,5 @@ def create_app(station: Station, settings: Settings = Settings()) -> Dash:
     app.layout = layout.build(settings, replay_mode=station.replay is not None)
     callbacks.register(app, station, settings)
     diagnosis_panel.register(app, station, settings)
+    recording_opener.register(app, station, settings)
     return app
