@@ -10,6 +10,7 @@ answers "opening ..." at once and the bar's interval brings the result.
 
 from __future__ import annotations
 
+import os
 import threading
 from dataclasses import dataclass
 from pathlib import Path
@@ -97,8 +98,9 @@ def bar(settings: Settings) -> html.Div:
     return html.Div(
         className="open-bar",
         children=[
-            html.Span(f"Recordings in {settings.recordings.resolve()}", id=ids.RECORDINGS_FOLDER,
-                      className="folder-name"),
+            # The folder as it was given (relative to where podwatch started), the whole path on hover.
+            html.Span(f"Recordings in {settings.recordings}{os.sep}", id=ids.RECORDINGS_FOLDER,
+                      title=str(settings.recordings.resolve()), className="folder-name"),
             dcc.Dropdown(id=ids.RECORDING_CHOICE, options=[], value=None, placeholder=CHOOSE,
                          className="recording-select"),
             html.Button("Open recording", id=ids.OPEN, n_clicks=0, className="button"),
