@@ -184,3 +184,33 @@ def _read_all(s: socket.socket) -> bytes:
     except ConnectionResetError:
         pass
     return data
+
+
+def test_a_request_the_page_never_sends_is_one_line_to_the_client_and_to_the_log(caplog):
+    station = Station(live=LiveSource(Hub({})))
+    server = DashboardServer(create_app(station).server, "127.0.0.1", 0)
+    server.start()
+    answers = []
+    try:
+        with caplog.at_level(logging.WARNING):
+            for method, path, body in (("POST", "/_dash-update-component", b"{}"),
+                                       ("POST", "/_dash-update-component", b"[1, 2]"),
+                                       ("POST", "/_dash-update-component", b"{}"),  # the same again: logged once
+                                       ("GET", "/_dash-component-suites/../../etc/passwd", b"")):
+                conn = http.client.HTTPConnection("127.0.0.1", server.port, timeout=30)
+                conn.request(method, path, body or None, {"Content-Type": "application/json"})
+                answer = conn.getresponse()
+                answers.append((answer.status, answer.read()))
+                conn.close()
+    finally:
+        server.stop()
+    assert answers == [(500, b"podwatch: could not answer this request (KeyError)\n"),
+                       (500, b"podwatch: could not answer this request (AttributeError)\n"),
+                       (500, b"podwatch: could not answer this request (KeyError)\n"),
+                       (404, b"podwatch: could not answer this request (DependencyException)\n")]
+    logged = [r.getMessage() for r in caplog.records if r.name == "podwatch.dashboard"]
+    assert [line.split(" (")[0] for line in logged] == [
+        "could not answer POST /_dash-update-component", "could not answer POST /_dash-update-component",
+        "could not answer GET /_dash-component-suites/../../etc/passwd"]
+    assert all("\n" not in line and "Traceback" not in line for line in logged)
+    assert not any(r.exc_info for r in caplog.records if r.levelno >= logging.WARNING)
