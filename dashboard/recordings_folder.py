@@ -135,28 +135,38 @@ def open_in_folder(folder: Path, name: str, limits: Limits = Limits()) -> Binary
     return raw
 
 
-def _inflate(raw: BinaryIO, piece_bytes: int) -> Iterator[bytes]:
+class _Inflate:
     """The decompressed bytes of a gzip file (every member), ``piece_bytes`` at most at a time.
 
     zlib parses the headers and inflates in C, with a bound on each output,
     so a crafted file costs no more than its decompressed bytes. A stream
-    cut short (a recording still being written) ends quietly; a corrupt one
-    raises zlib.error.
+    cut short (a recording still being written) ends quietly and sets
+    ``cut``; a corrupt one raises zlib.error.
     """
-    inflater = zlib.decompressobj(wbits=31)
-    pending = b""
-    while True:
-        if not pending:
-            pending = raw.read(piece_bytes)
+
+    def __init__(self, raw: BinaryIO, piece_bytes: int) -> None:
+        self.raw, self.piece_bytes = raw, piece_bytes
+        self.cut = False
+
+    def __iter__(self) -> Iterator[bytes]:
+        inflater = zlib.decompressobj(wbits=31)
+        pending = b""
+        started = False  # a member is under way
+        while True:
             if not pending:
-                return
-        piece = inflater.decompress(pending, piece_bytes)
-        pending = inflater.unconsumed_tail
-        if piece:
-            yield piece
-        if inflater.eof:
-            pending = inflater.unused_data.lstrip(b"\0")  # members may be padded with zeros
-            inflater = zlib.decompressobj(wbits=31)
+                pending = self.raw.read(self.piece_bytes)
+                if not pending:
+                    self.cut = started
+                    return
+            started = True
+            piece = inflater.decompress(pending, self.piece_bytes)
+            pending = inflater.unconsumed_tail
+            if piece:
+                yield piece
+            if inflater.eof:
+                pending = inflater.unused_data.lstrip(b"\0")  # members may be padded with zeros
+                inflater = zlib.decompressobj(wbits=31)
+                started = False
 
 
 class _LineCheck:
@@ -203,7 +213,8 @@ def copy_checked(raw: BinaryIO, out: BinaryIO, name: str, limits: Limits = Limit
     head = raw.read(2)
     raw.seek(0)
     compressed = head == GZIP_MAGIC
-    pieces = _inflate(raw, _PIECE_BYTES) if compressed else iter(lambda: raw.read(_PIECE_BYTES), b"")
+    inflate = _Inflate(raw, _PIECE_BYTES)
+    pieces = iter(inflate) if compressed else iter(lambda: raw.read(_PIECE_BYTES), b"")
     lines = _LineCheck(name, limits.line_bytes)
     total = 0
     warnings = []
@@ -219,6 +230,8 @@ def copy_checked(raw: BinaryIO, out: BinaryIO, name: str, limits: Limits = Limit
         if not total:
             raise RecordingError(f"{name}: not a readable gzip file ({exc})") from exc
         warnings.append(f"the compressed stream is damaged after {total} bytes; read what came before")
+    if inflate.cut:
+        warnings.append("the compressed stream ends early (receiver killed mid-write?); read what was there")
     return warnings
 
 

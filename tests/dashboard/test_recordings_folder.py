@@ -192,6 +192,8 @@ def test_a_recording_cut_mid_write_reads_what_was_there(folder):
     data = read_from_folder(folder, "cut.jsonl.gz")
     assert 0 < data.message_count < 977
     assert any("truncated last line" in w for w in data.warnings)
+    assert "the compressed stream ends early (receiver killed mid-write?); read what was there" in data.warnings
+    assert not any("ends early" in w for w in read_from_folder(folder, REVERSED.name).warnings)
 
 
 def test_a_damaged_gzip_file_is_one_line(folder):
@@ -241,8 +243,8 @@ def test_the_line_check_agrees_with_splitting_the_whole(tokens, cuts, limit):
 
 
 def test_inflating_keeps_each_piece_bounded():
-    from dashboard.recordings_folder import _inflate
+    from dashboard.recordings_folder import _Inflate
 
-    pieces = list(_inflate(io.BytesIO(_bomb(bytes(3 * MIB), 2)), MIB))
+    pieces = list(_Inflate(io.BytesIO(_bomb(bytes(3 * MIB), 2)), MIB))
     assert sum(map(len, pieces)) == 6 * MIB and max(map(len, pieces)) <= MIB
     assert zlib.crc32(b"".join(pieces)) == zlib.crc32(bytes(6 * MIB))
