@@ -1,25 +1,33 @@
 """The app factory: ``create_app(station)`` builds a Dash app around one station.
 
-Owns the Dash object's settings (assets folder, title). There is no app at
-module level: every caller, test and command builds its own.
+Owns the Dash object's settings (assets folder, title) and how a request
+that fails is answered: one line to the client and one to the log, never a
+traceback on the terminal. There is no app at module level: every caller,
+test and command builds its own.
 """
 
 from __future__ import annotations
 
+import logging
 from pathlib import Path
 
 from dash import Dash
+from dash.exceptions import DependencyException
+from flask import request
+from werkzeug.exceptions import HTTPException
 
-from dashboard import callbacks, diagnosis_panel, layout
+from dashboard import callbacks, diagnosis_panel, layout, recording_opener
 from dashboard.settings import Settings
 from dashboard.sources import Station
 
 ASSETS = Path(__file__).resolve().parent / "assets"
+log = logging.getLogger("podwatch.dashboard")
+LOGGED_MOST = 20  # distinct failures logged, each once: a client that repeats one cannot flood the terminal
 
 
 def create_app(station: Station, settings: Settings = Settings()) -> Dash:
-    """A new Dash app showing ``station``: the layout, the views' callbacks and the
-    diagnosis panels. Serve its ``.server`` (``server.start_dashboard`` does).
+    """A new Dash app showing ``station``: the layout, the views' callbacks, the
+    diagnosis panels and the recording opener. Serve its ``.server`` (``server.start_dashboard`` does).
     """
     app = Dash(
         __name__,
@@ -31,4 +39,27 @@ def create_app(station: Station, settings: Settings = Settings()) -> Dash:
     app.layout = layout.build(settings, replay_mode=station.replay is not None)
     callbacks.register(app, station, settings)
     diagnosis_panel.register(app, station, settings)
+    recording_opener.register(app, station, settings)
+    app.server.register_error_handler(Exception, _answer_in_one_line(set()))
     return app
+
+
+def _answer_in_one_line(logged: set[str]):
+    """A Flask error handler: HTTP errors as Flask answers them, anything else one line.
+
+    A request the page never sends (a callback body of the wrong shape, a
+    path outside the page's scripts) made Dash raise, and the terminal
+    showed a traceback for each. The traceback stays available at DEBUG.
+    """
+    def answer(error: Exception):
+        if isinstance(error, HTTPException):
+            return error
+        status = 404 if isinstance(error, DependencyException) else 500
+        line = f"{type(error).__name__}: {str(error).splitlines()[0][:200] if str(error) else ''}"
+        if len(logged) < LOGGED_MOST and line not in logged:
+            logged.add(line)
+            log.warning("could not answer %s %s (%s)", request.method, request.path[:200], line)
+        log.debug("the request's error", exc_info=error)
+        return f"podwatch: could not answer this request ({type(error).__name__})\n", status, {"Content-Type": "text/plain"}
+
+    return answer

@@ -1,8 +1,7 @@
 """The page's callbacks: read the inputs, ask the station, hand over what view.py built.
 
 Owns the wiring between component ids and the station; each callback is a
-few lines. Errors a user can cause (a bad recording path) become one line on
-the page, never a traceback.
+few lines. The recording opener's callbacks are in recording_opener.py.
 """
 
 from __future__ import annotations
@@ -15,7 +14,6 @@ from dashboard import ids, readout_texts, view
 from dashboard.pacing import PAINT_AND_ASK_NEXT, WATCHDOG, triggered_ids
 from dashboard.settings import Settings
 from dashboard.sources import Station
-from receiver.errors import PodwatchError
 
 VIEWS = (("track", ids.TRACK), ("poses", ids.POSES), ("errors", ids.ERRORS), ("loop", ids.LOOP))
 DISAGREEMENT_IDS = (ids.POSITION_NOW, ids.POSITION_WORST, ids.POSITION_GROWTH, ids.HEADING_NOW, ids.HEADING_WORST,
@@ -29,8 +27,7 @@ SLOW_TEXTS_S = 1.0
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
-    """Wire ``app``'s views, readouts, replay bar and recording opener to ``station``; call
-    once, from ``create_app``.
+    """Wire ``app``'s views, readouts and replay bar to ``station``; call once, from ``create_app``.
     """
     view_outputs = [Output(cid, prop) for _, cid in VIEWS for prop in ("figure", "extendData")]
     app.clientside_callback(
@@ -137,28 +134,3 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         # already shows could land between a release of the slider and the
         # page's call for it, and undo the seek.
         return tuple(no_update if value == old else value for value, old in zip(new, (scrub, *shown)))
-
-    @app.callback(
-        Output(ids.MESSAGE, "children"),
-        Output(ids.REPLAY_BAR, "className", allow_duplicate=True),
-        Output(ids.BACK_TO_LIVE, "className", allow_duplicate=True),
-        Input(ids.OPEN, "n_clicks"),
-        Input(ids.BACK_TO_LIVE, "n_clicks"),
-        State(ids.RECORDING_PATH, "value"),
-        prevent_initial_call=True,
-    )
-    def open_recording(_open, _back, path):
-        # The last click counts when two were merged into one call.
-        if triggered_ids()[-1:] == [ids.BACK_TO_LIVE]:
-            if station.show_live():
-                # The replay bar's callback, which shows this button, stops with the bar: hide it here.
-                return "showing the live receiver", "replay-bar hidden", "button hidden"
-            return "no live receiver in this run", no_update, no_update
-        if not path or not path.strip():
-            return "type the path of a recording first", no_update, no_update
-        try:
-            return station.open(path.strip()), "replay-bar", no_update
-        except PodwatchError as exc:
-            return f"cannot open: {exc}", no_update, no_update
-        except OSError as exc:
-            return f"cannot open {path.strip()}: {exc.strerror or exc}", no_update, no_update

@@ -79,9 +79,11 @@ def run_diagnosis(
 
     ``how`` and ``reason`` open the result, around the source's name: "ran by itself (live): ...".
     """
+    if not robot:
+        return diagnosis_message("No robot heard yet: nothing to diagnose."), None
     profile = station.profile(robot)
     if profile is None:
-        return diagnosis_message("This robot has no profile (give one with --profile): nothing to diagnose."), None
+        return diagnosis_message(f"{robot} has no profile (give one with --profile): nothing to diagnose."), None
     cols = station.columns(robot)
     if cols is None or not len(cols):
         return diagnosis_message(f"No samples from {robot} yet."), None
@@ -195,6 +197,10 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
     def diagnose_now(_clicks, ask, robot, seconds):
         # A press merged with an ask into one call (pacing.triggered_ids) is the person's run.
         asked = ids.DIAGNOSE_RUN not in triggered_ids()
+        if asked and not ask:
+            # The page calls this as it starts, with no ask in it (none has been made):
+            # nothing to run, and the panel keeps what it says.
+            return no_update, no_update
         robot = ask["robot"] if asked else robot
         how, reason = ("ran by itself", f"the disagreement passed {_limits_text(settings)}") if asked else ("ran on request", "")
         result, confidence = run_diagnosis(station, robot, seconds or settings.diagnose_s, how, reason)

@@ -21,8 +21,13 @@ PAUSE = "replay-pause"
 SPEED = "replay-speed"
 SCRUB = "replay-scrub"
 REPLAY_POSITION = "replay-position"
-RECORDING_PATH = "recording-path"
+
+# Recording opener (dashboard/recording_opener.py)
+RECORDINGS_FOLDER = "recordings-folder"
+RECORDING_CHOICE = "recording-choice"
+RECORDINGS_TICK = "recordings-tick"
 OPEN = "recording-open"
+OPEN_SHOWN = "recording-open-shown"
 BACK_TO_LIVE = "back-to-live"
 MESSAGE = "message-line"
 

@@ -12,11 +12,25 @@ from __future__ import annotations
 
 from dash import dcc, html
 
-from dashboard import diagnosis_panel, figures, ids
+from dashboard import diagnosis_panel, figures, ids, recording_opener
 from dashboard.settings import WINDOWS_S, Settings
 from dashboard.sources import REPLAY_SPEEDS
 
-_GRAPH_CONFIG = {"displaylogo": False, "responsive": True}
+# Every graph's toolbar, spelled out: zoom, pan, reset axes and download
+# image, nothing else. Left to its defaults it offers to share the chart
+# through an online service; a team's data never leaves the laptop by a click.
+MODEBAR_BUTTONS = ("zoom2d", "pan2d", "resetScale2d", "toImage")
+GRAPH_CONFIG = {
+    "displaylogo": False,
+    "responsive": True,
+    "modeBarButtons": [list(MODEBAR_BUTTONS)],
+    "showSendToCloud": False,
+    "showEditInChartStudio": False,
+    "showLink": False,
+    "sendData": False,
+    "plotlyServerURL": "",
+    "toImageButtonOptions": {"format": "png", "filename": "podwatch"},
+}
 
 
 def _readout(label: str, component_id: str, hint: str = "") -> html.Div:
@@ -35,7 +49,7 @@ def _card(title: str, *children, extra_class: str = "") -> html.Section:
 
 def _graph(component_id: str) -> html.Div:
     """A graph filling a box whose height the stylesheet sets (class ``box-<id>``)."""
-    graph = dcc.Graph(id=component_id, config=_GRAPH_CONFIG, figure={"data": [], "layout": {}})
+    graph = dcc.Graph(id=component_id, config=GRAPH_CONFIG, figure={"data": [], "layout": {}})
     return html.Div(className=f"graph-box box-{component_id}", children=graph)
 
 
@@ -78,16 +92,6 @@ def build(settings: Settings, replay_mode: bool) -> html.Div:
             html.Span("0.0 s of 0.0 s", id=ids.REPLAY_POSITION, className="replay-position"),
         ],
     )
-    opener = html.Div(
-        className="open-bar",
-        children=[
-            dcc.Input(id=ids.RECORDING_PATH, type="text", placeholder="recording path (.jsonl or .jsonl.gz)",
-                      debounce=False, className="path-input"),
-            html.Button("Open recording", id=ids.OPEN, n_clicks=0, className="button"),
-            html.Button("Back to live", id=ids.BACK_TO_LIVE, n_clicks=0, className="button hidden"),
-            html.Span(id=ids.MESSAGE, className="message-line"),
-        ],
-    )
     disagreement = _card(
         "Disagreement",
         html.Div(className="readouts", children=[
@@ -120,7 +124,7 @@ def build(settings: Settings, replay_mode: bool) -> html.Div:
         children=[
             controls,
             replay,
-            opener,
+            recording_opener.bar(settings),
             html.Main(
                 className="grid",
                 children=[

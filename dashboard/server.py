@@ -1,8 +1,11 @@
 """Serve a dashboard with waitress (a production WSGI server) in a background thread.
 
 Owns the listening socket of the page: loopback by default; any other
-address is the caller's explicit choice and is logged as a warning, since
-the page has no login. Never opens a browser.
+address is the caller's explicit choice and is logged as a warning, with
+the laptop's addresses to open on a tablet, since the page has no login.
+Only requests whose Host header names the page get through (host_guard.py),
+and request bodies over 1 MiB are refused with 413 before they are read.
+Never opens a browser.
 """
 
 from __future__ import annotations
@@ -16,6 +19,7 @@ from waitress import wasyncore
 from waitress.server import create_server
 
 from dashboard.app import create_app
+from dashboard.host_guard import HostGuard, network_urls
 from dashboard.settings import DEFAULT_HOST, DEFAULT_PORT, Settings
 from dashboard.sources import Station
 from receiver.errors import UsageError
@@ -24,6 +28,9 @@ from receiver.live.serve import parse_host_port
 log = logging.getLogger("podwatch.dashboard")
 THREADS = 4  # a page polls with a few callbacks at once; more threads only add contention
 STOP_S = 5.0  # at shutdown, at most this long for the requests being served (a diagnosis), then for the loop
+# The page's own requests are a few kB (a callback's inputs); anything much
+# larger is not from the page. waitress answers 413 to a body of this size or more.
+MAX_BODY_BYTES = 1024 * 1024 + 1
 # waitress warns "Task queue depth is N" whenever a request waits for a thread;
 # a page's callbacks arriving together do that all the time, harmlessly.
 logging.getLogger("waitress.queue").setLevel(logging.ERROR)
@@ -44,12 +51,15 @@ class DashboardServer:
 
     def __init__(self, wsgi_app, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT) -> None:
         self.host = host
-        if not is_loopback(host):
-            log.warning("dashboard listens on %s, not on loopback: anyone who can reach this address sees the page", host)
+        self.guard = HostGuard(wsgi_app, host)
         self._sockets: dict = {}  # waitress' socket map: the listening socket, the connections, its trigger
-        self._server = create_server(wsgi_app, map=self._sockets, host=host, port=port, threads=THREADS,
-                                     clear_untrusted_proxy_headers=True)
-        self.port = self._server.effective_port
+        self._server = create_server(self.guard, map=self._sockets, host=host, port=port, threads=THREADS,
+                                     clear_untrusted_proxy_headers=True, max_request_body_size=MAX_BODY_BYTES)
+        self.port = self.guard.port = int(self._server.effective_port)
+        if not is_loopback(host):
+            urls = " ".join(network_urls(host, self.port)) or "(no network address yet)"
+            log.warning("dashboard listens on %s, not on loopback: anyone who can reach it sees the page (it has no "
+                        "login); on a tablet on this network open %s", host, urls)
         self._closing = False
         self._closing_lock = threading.Lock()
         self._thread = threading.Thread(target=self._serve, name="podwatch-dashboard", daemon=True)

@@ -1,4 +1,4 @@
-"""What a dashboard is told at start: field and footprint sizes, thresholds, pacing.
+"""What a dashboard is told at start: field and footprint sizes, thresholds, pacing, the recordings folder.
 
 Owns the command-line spelling of lengths ("144in", "3.6m") and the
 defaults. Lengths are kept in metres and converted to each robot's profile
@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass
+from pathlib import Path
 
 from receiver.errors import UsageError
 from receiver.odometry.robot import METRES_PER_UNIT
@@ -19,6 +20,7 @@ LOOP_THRESHOLD_MS = 50.0
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 47480  # our own choice, near the UDP (47474) and WebSocket (47475) ports
 WINDOWS_S = (10, 30, 60, 120, 300, 600)
+RECORDINGS = Path("recordings")  # where serve records by default, and what the page lists
 _LENGTH = re.compile(r"^\s*([0-9]*\.?[0-9]+)\s*(in|mm|cm|m)?\s*$")
 
 
@@ -33,7 +35,7 @@ def parse_length(text: str) -> float:
 @dataclass(frozen=True)
 class Settings:
     """One dashboard's settings: lengths in metres, times in seconds (``tick_ms`` in ms),
-    the self-diagnosis thresholds in inches and degrees.
+    the self-diagnosis thresholds in inches and degrees, the recordings folder.
     """
 
     field_size_m: float = parse_length(FIELD_SIZE)
@@ -52,3 +54,4 @@ class Settings:
     diagnose_position_in: float = 2.0
     diagnose_heading_deg: float = 5.0
     diagnose_s: float = 10.0  # default clip: the last this many seconds
+    recordings: Path = RECORDINGS  # the folder the page lists and opens recordings from

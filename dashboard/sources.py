@@ -15,7 +15,7 @@ from typing import Callable
 import numpy as np
 
 from receiver.errors import UsageError
-from receiver.formats.recording import RecordingData, read_recording
+from receiver.formats.recording import RecordingData
 from receiver.live.hub import Hub
 from receiver.live.raw_history import RawHistory
 from receiver.live.replay import feed_hub, recorded_samples
@@ -158,15 +158,6 @@ class ReplaySource:
             self._thread.join()
 
 
-def open_recording(path: str, profiles: dict[str, Profile] | None = None) -> ReplaySource:
-    """A started, paused replay of the recording at ``path``."""
-    profiles = profiles or {}
-    data = read_recording(path, {n: len(p.wheels) for n, p in profiles.items()})
-    source = ReplaySource(data, profiles)
-    source.start()
-    return source
-
-
 class Station:
     """What the page shows: the live source, or a replay opened from the page or command line."""
 
@@ -209,14 +200,16 @@ class Station:
         source = self.active
         return f"{source.kind}:{id(source)}:{source.generation}"
 
-    def open(self, path: str) -> str:
-        """Replay the recording at ``path`` instead of what was shown; returns a line for the page."""
-        source = open_recording(path, self.profiles)
+    def open(self, data: RecordingData) -> str:
+        """Replay ``data`` (read by the caller, recordings_folder.read_from_folder) instead of
+        what was shown, paused at its start; returns a line for the page."""
+        source = ReplaySource(data, self.profiles)
+        source.start()
         with self._lock:
             old, self.replay = self.replay, source
         if old is not None:
             old.stop()
-        return f"opened {path}: {len(source.samples)} messages, {source.duration_s:.1f} s"
+        return f"opened {data.path}: {len(source.samples)} messages, {source.duration_s:.1f} s"
 
     def show_live(self) -> bool:
         """Back to the live receiver, when there is one."""

@@ -48,7 +48,7 @@ def cmd_serve(args: argparse.Namespace) -> int:
         mqtt=args.mqtt,
         forward=args.forward,
         token=args.token,
-        record=Path(args.record) if args.record else default_recording_path(),
+        record=Path(args.record) if args.record else default_recording_path(page.settings.recordings),
         prefix=args.prefix,
     )
     if not config.profiles:
@@ -82,6 +82,7 @@ class _PageServer:
             field_size_m=parse_length(args.field),
             footprint_m=parse_length(args.footprint),
             loop_threshold_s=args.loop_threshold / 1000.0,
+            recordings=_recordings_folder(args),
         )
 
     def start_live(self, receiver) -> None:
@@ -103,6 +104,16 @@ class _PageServer:
             self.server.stop()
         if self.station is not None:
             self.station.close()
+
+
+def _recordings_folder(args: argparse.Namespace) -> Path:
+    """The folder the page lists: --recordings, else the folder of --record FILE, else recordings/."""
+    from dashboard.settings import RECORDINGS
+
+    if args.recordings:
+        return Path(args.recordings)
+    record = getattr(args, "record", None)
+    return Path(record).parent if record else RECORDINGS
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -219,6 +230,9 @@ def _dashboard_options(parser: argparse.ArgumentParser, optional: bool) -> None:
                         help="side of the robot's square footprint on the track map (default 18in)")
     parser.add_argument("--loop-threshold", type=float, default=50.0, metavar="MS",
                         help="loops longer than this are highlighted (default 50)")
+    parser.add_argument("--recordings", metavar="DIR",
+                        help="the folder the page lists recordings from, and serve records into (default the "
+                             "folder of --record, else recordings/)")
 
 
 def add_live_commands(sub: argparse._SubParsersAction) -> None:

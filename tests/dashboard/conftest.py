@@ -35,13 +35,23 @@ def free_port() -> int:
 
 
 @pytest.fixture
-def demo_url():
-    """URL of a running ``podwatch demo`` (stopped with Ctrl-C after the test)."""
+def recordings(tmp_path):
+    """The page's recordings folder, holding a copy of the reversed-encoder fixture."""
+    folder = tmp_path / "recordings"
+    folder.mkdir()
+    shutil.copy(REVERSED, folder / REVERSED.name)
+    return folder
+
+
+@pytest.fixture
+def demo_url(recordings):
+    """URL of a running ``podwatch demo`` (stopped with Ctrl-C after the test), started beside
+    ``recordings`` and listing it (as recordings/, the default)."""
     port = free_port()
     proc = subprocess.Popen(
         [sys.executable, "-m", "receiver.cli", "demo", "--duration", "120", "--seed", "3",
          "--udp", "127.0.0.1:0", "--dashboard", f"127.0.0.1:{port}"],
-        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=ROOT,
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=recordings.parent,
     )
     url = None
     deadline = time.monotonic() + DEMO_START_S
@@ -83,3 +93,12 @@ def open_page(url: str, height: int):
             yield page
         finally:
             browser.close()
+
+
+def open_from_list(page, name: str) -> None:
+    """Choose ``name`` in the opener's list of recordings and press Open recording."""
+    from dashboard import ids
+
+    page.click(f"#{ids.RECORDING_CHOICE}")
+    page.get_by_role("option", name=re.compile(re.escape(name))).click()
+    page.click(f"#{ids.OPEN}")

@@ -17,7 +17,7 @@ import time
 import pytest
 
 from dashboard import ids
-from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_page
+from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_from_list, open_page
 
 sync_api = pytest.importorskip("playwright.sync_api")
 
@@ -90,8 +90,7 @@ def test_live_page_shows_the_disagreement_then_a_replay_pauses_and_scrubs(demo_u
         shutil.copyfile(ARTIFACTS / "dashboard.png", README_SCREENSHOT)
 
         # A recording opened from the page replays; it can be paused and scrubbed.
-        page.fill(f"#{ids.RECORDING_PATH}", str(REVERSED))
-        page.click(f"#{ids.OPEN}")
+        open_from_list(page, REVERSED.name)
         wait_for(lambda: "of 10.0 s" in page.inner_text(f"#{ids.REPLAY_POSITION}"), "the replay bar")
         page.click(f"#{ids.PLAY}")
         wait_for(lambda: replay_position(page) > 1.0, "the replay to play")

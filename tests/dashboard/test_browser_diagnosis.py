@@ -15,7 +15,7 @@ import time
 import pytest
 
 from dashboard import ids
-from tests.dashboard.conftest import ARTIFACTS, REVERSED, open_page
+from tests.dashboard.conftest import ARTIFACTS, REVERSED, open_from_list, open_page
 
 sync_api = pytest.importorskip("playwright.sync_api")
 
@@ -78,8 +78,7 @@ def test_the_page_names_the_reversed_wheel_by_itself_and_on_request(demo_url):
         # With the page already open when the robot starts to move (a
         # replay of the same mistake, started with Play), the verdict
         # follows within seconds.
-        page.fill(f"#{ids.RECORDING_PATH}", str(REVERSED))
-        page.click(f"#{ids.OPEN}")
+        open_from_list(page, REVERSED.name)
         wait_for_text(page, ids.REPLAY_POSITION, "of 10.0 s")
         wait_for_text(page, ids.DIAGNOSE_STATUS, "watching")
         page.click(f"#{ids.PLAY}")
@@ -87,7 +86,7 @@ def test_the_page_names_the_reversed_wheel_by_itself_and_on_request(demo_url):
         # A first automatic run may come too early to tell ("not enough
         # motion", which can already list the right explanation); it
         # retries, so wait for the confident answer with its change.
-        text = wait_for_text(page, ids.DIAGNOSE_RESULT, f"ran by itself ({REVERSED})", VERDICT, CHANGE,
-                             deadline_s=FROM_PLAY_DEADLINE_S)
+        text = wait_for_text(page, ids.DIAGNOSE_RESULT, f"ran by itself (recordings/{REVERSED.name})", VERDICT,
+                             CHANGE, deadline_s=FROM_PLAY_DEADLINE_S)
         print(f"verdict on the page {time.monotonic() - played:.1f} s after the replayed robot started")
         assert "practice-bot: " in text and CHANGE in text

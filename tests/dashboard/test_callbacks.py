@@ -187,7 +187,7 @@ def test_back_to_live_hides_the_replay_bar_and_itself():
     replay = ReplaySource(read_recording(REVERSED), clock=lambda: 0.0)
     station = Station(live=LiveSource(Hub({})), replay=replay)
     app = create_app(station)
-    values = {f"{ids.OPEN}.n_clicks": 0, f"{ids.BACK_TO_LIVE}.n_clicks": 1, f"{ids.RECORDING_PATH}.value": ""}
+    values = {f"{ids.OPEN}.n_clicks": 0, f"{ids.BACK_TO_LIVE}.n_clicks": 1, f"{ids.RECORDING_CHOICE}.value": None}
     out = call(app, f"{ids.MESSAGE}.children", values, [f"{ids.BACK_TO_LIVE}.n_clicks"])
     assert out[ids.MESSAGE]["children"] == "showing the live receiver"
     assert out[ids.REPLAY_BAR]["className"] == "replay-bar hidden"

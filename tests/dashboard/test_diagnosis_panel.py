@@ -161,3 +161,48 @@ def test_the_page_has_both_panels_and_their_callbacks():
     outputs = " ".join(app.callback_map)
     for component in ("diagnose-result", "diagnose-ask", "guided-steps", "guided-run"):
         assert component in outputs
+
+
+def test_a_robot_without_a_profile_gets_a_message_never_a_500():
+    # Through the real callback, as the page calls it: on Diagnose now, and as
+    # the page starts (a call with no ask in it, which used to raise a TypeError: a 500).
+    from dashboard import ids
+    from tests.dashboard.test_callbacks import call
+
+    data = read_recording(REVERSED)
+    data.profiles = {}
+    replay = ReplaySource(data, clock=lambda: 0.0)
+    replay.seek(5.0)
+    app = create_app(Station(replay=replay))
+    values = {f"{ids.ROBOT}.value": "practice-bot", f"{ids.DIAGNOSE_SECONDS}.value": 10,
+              f"{ids.DIAGNOSE_RUN}.n_clicks": 1, f"{ids.DIAGNOSE_ASK}.data": None}
+    answer = call(app, f"{ids.DIAGNOSE_RESULT}.children", values, ["diagnose-run.n_clicks"])  # asserts a 200
+    assert text_of_json(answer[ids.DIAGNOSE_RESULT]["children"]) == (
+        "practice-bot has no profile (give one with --profile): nothing to diagnose.")
+    for changed in (["diagnose-ask.data"], []):
+        assert call(app, f"{ids.DIAGNOSE_RESULT}.children", {**values, f"{ids.ROBOT}.value": None},
+                    changed) == {}  # 204: the panel keeps its text
+    watch = call(app, f"{ids.DIAGNOSE_WATCH}.data", {f"{ids.DIAGNOSE_REQUEST}.data": {"tick": 1},
+                                                     f"{ids.ROBOT}.value": "practice-bot"}, ["diagnose-request.data"])
+    assert watch[ids.DIAGNOSE_STATUS]["children"] == "no profile: nothing to watch"
+
+
+def test_no_robot_yet_and_a_robot_without_data_get_a_message():
+    from receiver.live.hub import Hub
+    from dashboard.sources import LiveSource
+
+    station = Station(live=LiveSource(Hub({"practice-bot": PRACTICE})))
+    result, confidence = diagnosis_panel.run_diagnosis(station, None, 10.0, "x")
+    assert text_of(result) == "No robot heard yet: nothing to diagnose." and confidence is None
+    result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")
+    assert text_of(result) == "No samples from practice-bot yet." and confidence is None
+
+
+def text_of_json(component: dict | str) -> str:
+    """Every string in a component as Dash sends it (JSON), in page order."""
+    if isinstance(component, str):
+        return component
+    children = component.get("props", {}).get("children")
+    if isinstance(children, list):
+        return "\n".join(text_of_json(c) for c in children)
+    return text_of_json(children) if children is not None else ""
