@@ -9,6 +9,7 @@ test and command builds its own.
 from __future__ import annotations
 
 import logging
+import uuid
 from pathlib import Path
 
 from dash import Dash
@@ -18,7 +19,7 @@ from werkzeug.exceptions import HTTPException
 
 from dashboard import callbacks, diagnosis_panel, layout, recording_opener
 from dashboard.settings import Settings
-from dashboard.sources import Station
+from dashboard.tabs import Station
 
 ASSETS = Path(__file__).resolve().parent / "assets"
 log = logging.getLogger("podwatch.dashboard")
@@ -36,7 +37,8 @@ def create_app(station: Station, settings: Settings = Settings()) -> Dash:
         assets_folder=str(ASSETS),
         serve_locally=True,  # every script from this server: the page works with no internet
     )
-    app.layout = layout.build(settings, replay_mode=station.replay is not None)
+    # A function: every page load (a new tab, or a reload) builds its own view id.
+    app.layout = lambda: layout.build(settings, replay_mode=station.live is None, view_id=uuid.uuid4().hex)
     callbacks.register(app, station, settings)
     diagnosis_panel.register(app, station, settings)
     recording_opener.register(app, station, settings)

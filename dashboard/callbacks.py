@@ -13,7 +13,7 @@ from dash import Dash, Input, Output, State, no_update
 from dashboard import ids, readout_texts, view
 from dashboard.pacing import PAINT_AND_ASK_NEXT, WATCHDOG, triggered_ids
 from dashboard.settings import Settings
-from dashboard.sources import Station
+from dashboard.tabs import Station
 
 VIEWS = (("track", ids.TRACK), ("poses", ids.POSES), ("errors", ids.ERRORS), ("loop", ids.LOOP))
 DISAGREEMENT_IDS = (ids.POSITION_NOW, ids.POSITION_WORST, ids.POSITION_GROWTH, ids.HEADING_NOW, ids.HEADING_WORST,
@@ -52,9 +52,10 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Input(ids.WINDOW, "value"),
         State(ids.CURSOR, "data"),
         State(ids.ROBOT, "options"),
+        State(ids.VIEW_ID, "data"),
     )
-    def update_views(request, robot, window_s, cursor, options):
-        refreshed = view.refresh(station, settings, robot, float(window_s), cursor)
+    def update_views(request, robot, window_s, cursor, options, view_id):
+        refreshed = view.refresh(station.tab(view_id), settings, robot, float(window_s), cursor)
         refreshed.cursor["tick"] = (request or {}).get("tick")
         fresh = [{"label": name, "value": name} for name in refreshed.robots]
         views = [
@@ -108,9 +109,11 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         State(ids.REPLAY_POSITION, "children"),
         State(ids.REPLAY_BAR, "className"),
         State(ids.BACK_TO_LIVE, "className"),
+        State(ids.VIEW_ID, "data"),
     )
-    def replay_controls(_play, _pause, speed, scrub, _tick, *shown):
-        replay = station.replay
+    def replay_controls(_play, _pause, speed, scrub, _tick, *shown_and_view):
+        *shown, view_id = shown_and_view
+        replay = station.tab(view_id).replay
         if replay is None:
             new = (no_update, no_update, "", "replay-bar hidden", "button hidden")
         else:

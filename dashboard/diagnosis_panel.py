@@ -19,7 +19,7 @@ from dashboard.autodiagnose import REARM_SHARE, Thresholds, Watch, WatchState, l
 from dashboard.diagnosis_content import diagnosis_message, diagnosis_view, guided_intro, guided_view
 from dashboard.pacing import ASK_WHEN_ANSWERED, triggered_ids
 from dashboard.settings import Settings
-from dashboard.sources import Station
+from dashboard.tabs import Station, TabView
 from receiver.analysis.diagnose import diagnose_recent, equivalence_classes
 from receiver.analysis.guided_check import guided_check
 from receiver.analysis.sample_clip import clip_from_columns
@@ -73,7 +73,7 @@ def cards(settings: Settings) -> list[html.Section]:
 
 
 def run_diagnosis(
-    station: Station, robot: str | None, seconds: float, how: str, reason: str = ""
+    shown: TabView, robot: str | None, seconds: float, how: str, reason: str = ""
 ) -> tuple[html.Div, str | None]:
     """The panel's result for the robot's last ``seconds``, and the confidence (None when none ran).
 
@@ -81,29 +81,29 @@ def run_diagnosis(
     """
     if not robot:
         return diagnosis_message("No robot heard yet: nothing to diagnose."), None
-    profile = station.profile(robot)
+    profile = shown.profile(robot)
     if profile is None:
         return diagnosis_message(f"{robot} has no profile (give one with --profile): nothing to diagnose."), None
-    cols = station.columns(robot)
+    cols = shown.columns(robot)
     if cols is None or not len(cols):
         return diagnosis_message(f"No samples from {robot} yet."), None
     try:
         diagnosis = diagnose_recent(cols, profile, float(seconds), robot)
     except PodwatchError as exc:
         return diagnosis_message(f"Cannot diagnose: {exc}"), None
-    why = f"{how} ({station.active.label})" + (f": {reason}" if reason else "")
+    why = f"{how} ({shown.label})" + (f": {reason}" if reason else "")
     return diagnosis_view(diagnosis, why), diagnosis.confidence
 
 
-def guided_panel(station: Station, run: dict) -> html.Div:
+def guided_panel(shown: TabView, run: dict) -> html.Div:
     """The guided check's steps on the samples since Start."""
-    if run["key"] != station.key():
+    if run["key"] != shown.key():
         return diagnosis_message("The page shows another source now: press Start guided check again.")
     robot = run["robot"]
-    profile = station.profile(robot)
+    profile = shown.profile(robot)
     if profile is None:
         return diagnosis_message("The guided check needs a robot with a profile.")
-    cols = station.columns(robot, since_rx=run["since_rx"])
+    cols = shown.columns(robot, since_rx=run["since_rx"])
     try:
         result = guided_check(clip_from_columns(cols), profile, robot) if cols is not None else None
     except PodwatchError:
@@ -121,17 +121,17 @@ def _status(watch: Watch, settings: Settings) -> str:
     return f"watching: runs by itself past {_limits_text(settings)}"
 
 
-def _watch(station: Station, settings: Settings, tick: int, robot: str | None, data: dict | None, answer: dict | None):
+def _watch(shown: TabView, settings: Settings, tick: int, robot: str | None, data: dict | None, answer: dict | None):
     """(watch, ask, status line) after one tick of the watch; watch and ask are None when they stay as they were."""
     # Before the page has chosen a robot (its first refresh), watch the first one heard.
-    robot = robot or next(iter(station.heard_robots()), None)
-    profile = station.profile(robot)
+    robot = robot or next(iter(shown.heard_robots()), None)
+    profile = shown.profile(robot)
     if profile is None:
         return None, None, "" if robot is None else "no profile: nothing to watch"
-    watch, key = Watch.from_store(data), station.key()
+    watch, key = Watch.from_store(data), shown.key()
     since = watch.rx if (watch.robot, watch.key) == (robot, key) else None
     try:
-        rows = station.history(robot, since_rx=since)
+        rows = shown.history(robot, since_rx=since)
     except KeyError:  # the robot is not in this source (yet)
         return None, None, ""
     limits = Thresholds.of(settings.diagnose_position_in, settings.diagnose_heading_deg, profile.distance_unit)
@@ -149,7 +149,7 @@ def warm_up(station: Station) -> None:
     """
     importlib.import_module("scipy.optimize")  # what refine.py imports at its first fit
 
-    for profile in {**station.profiles, **station.active.hub.profiles}.values():
+    for profile in station.all_profiles().values():
         equivalence_classes(profile)
 
 
@@ -177,11 +177,12 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         State(ids.ROBOT, "value"),
         State(ids.DIAGNOSE_WATCH, "data"),
         State(ids.DIAGNOSE_ANSWER, "data"),
+        State(ids.VIEW_ID, "data"),
     )
-    def watch_disagreement(request, robot, data, answer):
+    def watch_disagreement(request, robot, data, answer, view_id):
         tick = (request or {}).get("tick") or 0
         data = data or {}
-        watch, ask, status = _watch(station, settings, tick, robot, data.get("watch"), answer)
+        watch, ask, status = _watch(station.tab(view_id), settings, tick, robot, data.get("watch"), answer)
         store = {"watch": data.get("watch") if watch is None else watch, "tick": tick, "status": status}
         return store, (no_update if ask is None else ask), (no_update if status == data.get("status") else status)
 
@@ -192,9 +193,10 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Input(ids.DIAGNOSE_ASK, "data"),
         State(ids.ROBOT, "value"),
         State(ids.DIAGNOSE_SECONDS, "value"),
+        State(ids.VIEW_ID, "data"),
         prevent_initial_call=True,
     )
-    def diagnose_now(_clicks, ask, robot, seconds):
+    def diagnose_now(_clicks, ask, robot, seconds, view_id):
         # A press merged with an ask into one call (pacing.triggered_ids) is the person's run.
         asked = ids.DIAGNOSE_RUN not in triggered_ids()
         if asked and not ask:
@@ -203,7 +205,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             return no_update, no_update
         robot = ask["robot"] if asked else robot
         how, reason = ("ran by itself", f"the disagreement passed {_limits_text(settings)}") if asked else ("ran on request", "")
-        result, confidence = run_diagnosis(station, robot, seconds or settings.diagnose_s, how, reason)
+        result, confidence = run_diagnosis(station.tab(view_id), robot, seconds or settings.diagnose_s, how, reason)
         # Whatever triggered it, this run answers the latest ask: it saw the newest samples.
         return result, {"n": (ask or {}).get("n"), "confidence": confidence}
 
@@ -216,12 +218,14 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Input(ids.GUIDED_FINISH, "n_clicks"),
         State(ids.ROBOT, "value"),
         State(ids.GUIDED_RUN, "data"),
+        State(ids.VIEW_ID, "data"),
         prevent_initial_call=True,
     )
-    def guided_buttons(_start, _finish, robot, run):
+    def guided_buttons(_start, _finish, robot, run, view_id):
         if ctx.triggered_id == ids.GUIDED_START:
-            since = station.latest_rx(robot) if robot else None
-            return {"robot": robot, "key": station.key(), "since_rx": since, "finished": False}, True, False, False
+            shown = station.tab(view_id)
+            since = shown.latest_rx(robot) if robot else None
+            return {"robot": robot, "key": shown.key(), "since_rx": since, "finished": False}, True, False, False
         if not run:
             return no_update, False, True, True
         return {**run, "finished": True}, False, True, True
@@ -231,6 +235,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Output(ids.GUIDED_CURSOR, "data"),
         Input(ids.GUIDED_RUN, "data"),
         Input(ids.GUIDED_REQUEST, "data"),
+        State(ids.VIEW_ID, "data"),
     )
-    def guided_progress(run, request):
-        return (guided_panel(station, run) if run else no_update), {"tick": (request or {}).get("tick")}
+    def guided_progress(run, request, view_id):
+        return (guided_panel(station.tab(view_id), run) if run else no_update), {"tick": (request or {}).get("tick")}

@@ -5,6 +5,7 @@ string id never appears anywhere else.
 """
 
 # Controls
+VIEW_ID = "view-id"  # the tab's own view (tabs.Station.tab); set when its page is built
 ROBOT = "robot-select"
 WINDOW = "window-select"
 FOLLOW = "follow-button"

@@ -63,8 +63,8 @@ def _legend_key() -> html.Div:
     )
 
 
-def build(settings: Settings, replay_mode: bool) -> html.Div:
-    """The page's component tree; ``replay_mode`` shows the replay bar from the start."""
+def build(settings: Settings, replay_mode: bool, view_id: str = "") -> html.Div:
+    """The page's component tree for the tab ``view_id``; ``replay_mode`` shows the replay bar from the start."""
     window_options = [{"label": f"last {w} s" if w < 120 else f"last {w // 60} min", "value": w} for w in WINDOWS_S]
     controls = html.Header(
         className="topbar",
@@ -137,6 +137,7 @@ def build(settings: Settings, replay_mode: bool) -> html.Div:
                 ],
             ),
             dcc.Interval(id=ids.TICK, interval=settings.tick_ms, n_intervals=0),
+            dcc.Store(id=ids.VIEW_ID, data=view_id),
             dcc.Store(id=ids.CURSOR, data=None),
             dcc.Store(id=ids.REQUEST, data=None),
             dcc.Store(id=ids.REPLAY_REQUEST, data=None),

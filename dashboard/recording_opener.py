@@ -3,7 +3,8 @@
 Owns the opener bar's components and callbacks and the one background read
 behind Open: a recording is chosen from the folder's list (never typed as
 a path), read by recordings_folder.read_from_folder in a worker thread, and
-handed to the station. The page's own threads never wait for a file: Open
+shown in the tab that asked for it (tabs.Station.open); one read at a time
+for the whole server. The page's own threads never wait for a file: Open
 answers "opening ..." at once and the bar's interval brings the result.
 ``bar`` goes into the page; ``register`` is called from ``create_app``.
 """
@@ -22,7 +23,7 @@ from dashboard import ids
 from dashboard.pacing import triggered_ids
 from dashboard.recordings_folder import Limits, list_recordings, read_from_folder
 from dashboard.settings import Settings
-from dashboard.sources import Station
+from dashboard.tabs import Station
 from receiver.errors import PodwatchError
 from receiver.formats.recording import RecordingData
 
@@ -40,8 +41,12 @@ class Outcome:
     opened: bool
 
 
+# Outcomes kept for this many tabs at most (the newest); a tab forgotten sees no news.
+KEPT_OUTCOMES = 64
+
+
 class Opener:
-    """Reads one recording at a time from the folder in a worker thread, then shows it on the station."""
+    """Reads one recording at a time from the folder in a worker thread, then shows it in the asking tab."""
 
     def __init__(self, station: Station, folder: Path, limits: Limits = Limits(),
                  read: Callable[..., RecordingData] = read_from_folder) -> None:
@@ -52,26 +57,27 @@ class Opener:
         self._lock = threading.Lock()
         self._serial = 0
         self._busy: str | None = None  # the name being read
-        self._outcome: Outcome | None = None
+        self._outcomes: dict[str | None, Outcome] = {}  # by view id, newest last
         self._thread: threading.Thread | None = None
 
-    def start(self, name: str) -> str:
-        """Begin reading ``name``; the line to show now ("opening ...", or why not)."""
+    def start(self, view_id: str | None, name: str) -> str:
+        """Begin reading ``name`` for the tab ``view_id``; the line to show now ("opening ...", or why not)."""
         with self._lock:
             if self._busy is not None:
                 return f"still opening {self._busy} ..."
             self._busy = name
             self._serial += 1
             serial = self._serial
-        self._thread = threading.Thread(target=self._open, args=(name, serial), name="podwatch-open", daemon=True)
+        self._thread = threading.Thread(target=self._open, args=(view_id, name, serial), name="podwatch-open",
+                                        daemon=True)
         self._thread.start()
         return f"opening {name} ..."
 
-    def _open(self, name: str, serial: int) -> None:
+    def _open(self, view_id: str | None, name: str, serial: int) -> None:
         profiles = self.station.profiles
         try:
             data = self._read(self.folder, name, {n: len(p.wheels) for n, p in profiles.items()}, self.limits)
-            outcome = Outcome(serial, self.station.open(data), True)
+            outcome = Outcome(serial, self.station.open(view_id, data), True)
         except PodwatchError as exc:
             outcome = Outcome(serial, f"cannot open: {exc}", False)
         except OSError as exc:
@@ -79,13 +85,16 @@ class Opener:
         except MemoryError:
             outcome = Outcome(serial, f"cannot open {name}: not enough memory", False)
         with self._lock:
-            self._outcome = outcome
+            self._outcomes.pop(view_id, None)
+            self._outcomes[view_id] = outcome
+            while len(self._outcomes) > KEPT_OUTCOMES:
+                del self._outcomes[next(iter(self._outcomes))]
             self._busy = None
 
-    def outcome(self) -> Outcome | None:
-        """How the last open ended; None before the first has ended."""
+    def outcome(self, view_id: str | None) -> Outcome | None:
+        """How the tab's last open ended; None before its first has ended."""
         with self._lock:
-            return self._outcome
+            return self._outcomes.get(view_id)
 
     def join(self, timeout: float | None = None) -> None:
         """Wait for the open in progress, if any (for tests and shutdown)."""
@@ -123,18 +132,19 @@ def register(app: Dash, station: Station, settings: Settings, limits: Limits = L
         Input(ids.OPEN, "n_clicks"),
         Input(ids.BACK_TO_LIVE, "n_clicks"),
         State(ids.RECORDING_CHOICE, "value"),
+        State(ids.VIEW_ID, "data"),
         prevent_initial_call=True,
     )
-    def open_or_go_live(_open, _back, name):
+    def open_or_go_live(_open, _back, name, view_id):
         # The last click counts when two were merged into one call.
         if triggered_ids()[-1:] == [ids.BACK_TO_LIVE]:
-            if station.show_live():
+            if station.show_live(view_id):
                 # The replay bar's callback, which shows this button, stops with the bar: hide it here.
                 return "showing the live receiver", "replay-bar hidden", "button hidden"
             return "no live receiver in this run", no_update, no_update
         if not name:
             return "choose a recording from the list first", no_update, no_update
-        return opener.start(name), no_update, no_update
+        return opener.start(view_id, name), no_update, no_update
 
     @app.callback(
         Output(ids.RECORDING_CHOICE, "options"),
@@ -146,11 +156,12 @@ def register(app: Dash, station: Station, settings: Settings, limits: Limits = L
         State(ids.RECORDING_CHOICE, "options"),
         State(ids.RECORDING_CHOICE, "placeholder"),
         State(ids.OPEN_SHOWN, "data"),
+        State(ids.VIEW_ID, "data"),
         prevent_initial_call="initial_duplicate",
     )
-    def list_and_report(_tick, options, placeholder, shown):
+    def list_and_report(_tick, options, placeholder, shown, view_id):
         fresh = [{"label": e.label, "value": e.name} for e in list_recordings(settings.recordings)]
-        outcome = opener.outcome()
+        outcome = opener.outcome(view_id)
         if shown is None:  # a page just loaded: only opens from now on are its news
             message, replay_bar, shown = no_update, no_update, outcome.serial if outcome else 0
         elif outcome is None or outcome.serial == shown:

@@ -21,7 +21,7 @@ from waitress.server import create_server
 from dashboard.app import create_app
 from dashboard.host_guard import HostGuard, network_urls
 from dashboard.settings import DEFAULT_HOST, DEFAULT_PORT, Settings
-from dashboard.sources import Station
+from dashboard.tabs import Station
 from receiver.errors import UsageError
 from receiver.live.serve import parse_host_port
 

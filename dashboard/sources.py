@@ -1,7 +1,7 @@
 """Where the page's data comes from: a live hub, or a recording replayed into one.
 
-Owns the replay's controls (play, pause, speed, seek) and which source the
-page shows. A replay feeds the same ``Hub.ingest``/``process`` calls the
+Owns the replay's controls (play, pause, speed, seek). Which source a tab
+shows is tabs.py. A replay feeds the same ``Hub.ingest``/``process`` calls the
 transports cause; seeking back rebuilds the hub and feeds it up to the new
 position as fast as it can. Never draws anything and never serves HTTP.
 """
@@ -19,7 +19,6 @@ from receiver.formats.recording import RecordingData
 from receiver.live.hub import Hub
 from receiver.live.raw_history import RawHistory
 from receiver.live.replay import feed_hub, recorded_samples
-from receiver.odometry.columns import Columns
 from receiver.odometry.robot import Profile
 
 REPLAY_STEP_S = 0.02  # how often a playing replay feeds the hub (wall clock)
@@ -156,72 +155,3 @@ class ReplaySource:
         self._stop.set()
         if self._thread is not None:
             self._thread.join()
-
-
-class Station:
-    """What the page shows: the live source, or a replay opened from the page or command line."""
-
-    def __init__(self, live: LiveSource | None = None, replay: ReplaySource | None = None,
-                 profiles: dict[str, Profile] | None = None) -> None:
-        assert live is not None or replay is not None
-        self.live = live
-        self.replay = replay
-        self.profiles = dict(profiles or {})
-        self._lock = threading.Lock()
-
-    @property
-    def active(self) -> LiveSource | ReplaySource:
-        """The shown source: the replay when there is one, else the live receiver."""
-        return self.replay if self.replay is not None else self.live
-
-    def profile(self, robot: str | None) -> Profile | None:
-        """The profile the shown source recomputes ``robot`` with; None without one."""
-        return self.active.hub.profiles.get(robot) if robot else None
-
-    def columns(self, robot: str, since_rx: float | None = None) -> Columns | None:
-        """The robot's own samples (counts, pose, IMU) held by the shown source, received after
-        ``since_rx``; None for a robot never heard."""
-        return self.active.raw.columns(robot, since_rx)
-
-    def latest_rx(self, robot: str) -> float | None:
-        """The receive time of the robot's newest sample in the shown source; None before its first."""
-        return self.active.raw.latest_rx(robot)
-
-    def heard_robots(self) -> list[str]:
-        """The robots the shown source has samples of, by name."""
-        return self.active.raw.robots()
-
-    def history(self, robot: str, since_rx: float | None = None) -> dict:
-        """The shown source's result rows of one robot (``Hub.history``); KeyError for an unknown robot."""
-        return self.active.hub.history(robot, since_rx)
-
-    def key(self) -> str:
-        """Changes whenever the page must redraw everything (another source or a rebuilt hub)."""
-        source = self.active
-        return f"{source.kind}:{id(source)}:{source.generation}"
-
-    def open(self, data: RecordingData) -> str:
-        """Replay ``data`` (read by the caller, recordings_folder.read_from_folder) instead of
-        what was shown, paused at its start; returns a line for the page."""
-        source = ReplaySource(data, self.profiles)
-        source.start()
-        with self._lock:
-            old, self.replay = self.replay, source
-        if old is not None:
-            old.stop()
-        return f"opened {data.path}: {len(source.samples)} messages, {source.duration_s:.1f} s"
-
-    def show_live(self) -> bool:
-        """Back to the live receiver, when there is one."""
-        if self.live is None:
-            return False
-        with self._lock:
-            old, self.replay = self.replay, None
-        if old is not None:
-            old.stop()
-        return True
-
-    def close(self) -> None:
-        """Stop the replay's thread, if any; the live receiver is its owner's to stop."""
-        if self.replay is not None:
-            self.replay.stop()

@@ -20,7 +20,7 @@ import numpy as np
 from dashboard import figures, readouts
 from dashboard.downsample import pick_rows
 from dashboard.settings import Settings
-from dashboard.sources import Station
+from dashboard.tabs import TabView
 from receiver.live.session import LinkState, RobotSnapshot
 from receiver.odometry.counts import ANCHORS
 from receiver.odometry.robot import METRES_PER_UNIT
@@ -57,8 +57,8 @@ class Refresh:
     cursor: dict = field(default_factory=dict)
 
 
-def _unit(station: Station, robot: str | None) -> tuple[str, float | None]:
-    profile = station.profile(robot)
+def _unit(shown: TabView, robot: str | None) -> tuple[str, float | None]:
+    profile = shown.profile(robot)
     if profile is None:
         return NO_PROFILE_UNIT, None
     return profile.distance_unit, METRES_PER_UNIT[profile.distance_unit]
@@ -80,26 +80,26 @@ def status_line(snap: RobotSnapshot | None, now: float, source_label: str) -> st
 
 
 def refresh(
-    station: Station, settings: Settings, robot: str | None, window_s: float, cursor: dict | None, force_full: bool = False
+    shown: TabView, settings: Settings, robot: str | None, window_s: float, cursor: dict | None, force_full: bool = False
 ) -> Refresh:
     """One refresh of ``robot`` (the first there is when unknown) over the last ``window_s``
     seconds. ``cursor`` is the last refresh's ``Refresh.cursor``, which the page sends
     back; without one, or with ``force_full``, everything is redrawn.
     """
-    source = station.active
+    source = shown.source
     now = source.now()
     hub = source.hub
     snapshots = hub.snapshot(now, loop_stats=False)  # the views compute their own from their rows
     robots = sorted(snapshots)
     if robot not in snapshots:
         robot = robots[0] if robots else None
-    unit, metres_per_unit = _unit(station, robot)
+    unit, metres_per_unit = _unit(shown, robot)
     out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, status=status_line(snapshots.get(robot), now, source.label), now=now)
     named = sum((Counter(snap.errors) for snap in snapshots.values()), Counter())
     out.unattributed = {
         str(reason): count - named[str(reason)] for reason, count in hub.errors.items() if count > named[str(reason)]
     }
-    key = station.key()
+    key = shown.key()
     full = (
         force_full
         or not cursor

@@ -86,20 +86,32 @@ class _PageServer:
         )
 
     def start_live(self, receiver) -> None:
+        """Serve the page on the live receiver's hub."""
         from dashboard.server import start_dashboard
-        from dashboard.sources import LiveSource, Station
+        from dashboard.sources import LiveSource
+        from dashboard.tabs import Station
 
         self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles)
         self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
 
-    def start_replay(self, source) -> None:
+    def start_replay(self, data, speed: float) -> None:
+        """Serve the page on a recording: each tab plays a replay of its own from the start at ``speed``."""
         from dashboard.server import start_dashboard
-        from dashboard.sources import Station
+        from dashboard.sources import ReplaySource
+        from dashboard.tabs import Station
 
-        self.station = Station(replay=source, profiles=self.profiles)
+        def playing(recording) -> ReplaySource:
+            source = ReplaySource(recording, self.profiles)
+            source.set_speed(speed)
+            source.start()
+            source.play()
+            return source
+
+        self.station = Station(recording=data, profiles=self.profiles, make_replay=playing)
         self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
 
     def stop(self) -> None:
+        """Stop serving the page and every tab's replay."""
         if self.server is not None:
             self.server.stop()
         if self.station is not None:
@@ -193,17 +205,18 @@ def cmd_replay(args: argparse.Namespace) -> int:
 
 def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]) -> int:
     """Replay on the dashboard, playing at --speed, until Ctrl-C."""
-    from dashboard.sources import REPLAY_SPEEDS, ReplaySource
+    from dashboard.sources import REPLAY_SPEEDS
+    from receiver.live.replay import recorded_span_s
 
     logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
-    source = ReplaySource(data, profiles)
-    source.set_speed(args.speed if args.speed > 0 else max(REPLAY_SPEEDS))
-    source.start()
+    duration_s = recorded_span_s(data)
+    if duration_s is None:
+        raise UsageError(f"{args.recording}: the recording holds no messages")
     page = _PageServer(args, profiles)
     try:
-        page.start_replay(source)
-        source.play()
-        say(f"replaying {args.recording} ({source.duration_s:.1f} s) on the dashboard; Ctrl-C to stop")
+        page.start_replay(data, args.speed if args.speed > 0 else max(REPLAY_SPEEDS))
+        say(f"replaying {args.recording} ({duration_s:.1f} s) on the dashboard, from the start in each tab; "
+            "Ctrl-C to stop")
         stop = threading.Event()
         # Both set here: a shell starts a background job with SIGINT ignored,
         # and Python then installs no KeyboardInterrupt for it.

@@ -60,6 +60,15 @@ def recorded_samples(data: RecordingData) -> tuple[list[Sample], np.ndarray]:
     return [samples[i] for i in order], when[order]
 
 
+def recorded_span_s(data: RecordingData) -> float | None:
+    """Seconds from the first to the last message by the timestamps a replay paces by; None when empty."""
+    use_rx = all(np.isfinite(cols.rx).all() for cols in data.robots.values())
+    stamps = [cols.rx if use_rx else cols.t for cols in data.robots.values() if len(cols)]
+    if not stamps:
+        return None
+    return float(max(s.max() for s in stamps) - min(s.min() for s in stamps))
+
+
 def _optional(value: float) -> float | None:
     return float(value) if math.isfinite(value) else None
 

@@ -41,7 +41,8 @@ sys.path.insert(0, str(ROOT))
 from dashboard import ids  # noqa: E402
 from dashboard.app import create_app  # noqa: E402
 from dashboard.settings import Settings  # noqa: E402
-from dashboard.sources import LiveSource, Station  # noqa: E402
+from dashboard.sources import LiveSource  # noqa: E402
+from dashboard.tabs import Station  # noqa: E402
 from receiver.formats.profile_toml import load_profile, write_profile  # noqa: E402
 from receiver.live.hub import Hub  # noqa: E402
 from receiver.odometry.faults import parse_faults

@@ -81,18 +81,29 @@ def _loopback_only(route) -> None:
 
 
 @contextmanager
-def open_page(url: str, height: int):
-    """A headless Chromium page on ``url``, 1400 px wide; requests off loopback are aborted."""
+def open_pages(url: str, height: int, count: int):
+    """``count`` headless Chromium pages (tabs) on ``url``, 1400 px wide, in one browser;
+    requests off loopback are aborted."""
     sync_api = pytest.importorskip("playwright.sync_api")
     with sync_api.sync_playwright() as p:
         browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
         try:
-            page = browser.new_page(viewport={"width": 1400, "height": height})
-            page.route("**/*", _loopback_only)
-            page.goto(url)
-            yield page
+            pages = []
+            for _ in range(count):
+                page = browser.new_page(viewport={"width": 1400, "height": height})
+                page.route("**/*", _loopback_only)
+                page.goto(url)
+                pages.append(page)
+            yield pages
         finally:
             browser.close()
+
+
+@contextmanager
+def open_page(url: str, height: int):
+    """A headless Chromium page on ``url`` (``open_pages`` with one page)."""
+    with open_pages(url, height, 1) as (page,):
+        yield page
 
 
 def open_from_list(page, name: str) -> None:

@@ -17,13 +17,20 @@ import pytest
 
 from dashboard import callbacks, ids, readout_texts
 from dashboard.app import create_app
-from dashboard.sources import LiveSource, ReplaySource, Station
+from dashboard.sources import LiveSource, ReplaySource
+from dashboard.tabs import Station
 from receiver.formats.recording import read_recording
 from receiver.live.hub import Hub
 from receiver.live.session import LinkState, RobotSnapshot
 from tests.conftest import FIXTURES
 
 REVERSED = FIXTURES / "practice-bot-figure-eight-reversed-right.jsonl.gz"
+TAB = "test-tab"  # the view id every call below comes from, unless it says another
+
+
+def replay_station(source: ReplaySource) -> Station:
+    """A station without a live receiver whose tabs all show ``source`` (one tab in these tests)."""
+    return Station(recording=read_recording(REVERSED), make_replay=lambda _: source)
 
 
 def call(app, output: str, values: dict[str, object], changed: list[str]) -> dict:
@@ -34,6 +41,8 @@ def call(app, output: str, values: dict[str, object], changed: list[str]) -> dic
     key = next(k for k in app.callback_map if output in k)
     spec = app.callback_map[key]
     parts = [p for p in key.strip(".").split("...")] if key.startswith("..") else [key]
+
+    values = {f"{ids.VIEW_ID}.data": TAB, **values}
 
     def item(i):
         name = f"{i['id']}.{i['property']}"
@@ -57,7 +66,7 @@ def call(app, output: str, values: dict[str, object], changed: list[str]) -> dic
 def replay():
     """A replay whose clock stands still: it moves only when a control moves it."""
     source = ReplaySource(read_recording(REVERSED), clock=lambda: 0.0)
-    return source, create_app(Station(replay=source))
+    return source, create_app(replay_station(source))
 
 
 TICK = f"{ids.REPLAY_REQUEST}.data"
@@ -158,7 +167,7 @@ class Clock:
 def test_an_update_paints_every_readout_and_the_table_once_a_second():
     clock = Clock()
     source = ReplaySource(read_recording(REVERSED), clock=clock)
-    app = create_app(Station(replay=source))
+    app = create_app(replay_station(source))
     source.seek(3.0)
     state = {f"{ids.REQUEST}.data": {"tick": 1}, f"{ids.ROBOT}.value": "practice-bot", f"{ids.WINDOW}.value": 60,
              f"{ids.ROBOT}.options": [{"label": "practice-bot", "value": "practice-bot"}]}
@@ -184,12 +193,12 @@ def test_back_to_live_hides_the_replay_bar_and_itself():
     # The replay bar's callback, which shows the button, stops asking once the
     # bar is hidden: the button stayed on the page, offering a way back to where
     # the page already was.
-    replay = ReplaySource(read_recording(REVERSED), clock=lambda: 0.0)
-    station = Station(live=LiveSource(Hub({})), replay=replay)
+    station = Station(live=LiveSource(Hub({})))
+    station.open(TAB, read_recording(REVERSED))
     app = create_app(station)
     values = {f"{ids.OPEN}.n_clicks": 0, f"{ids.BACK_TO_LIVE}.n_clicks": 1, f"{ids.RECORDING_CHOICE}.value": None}
     out = call(app, f"{ids.MESSAGE}.children", values, [f"{ids.BACK_TO_LIVE}.n_clicks"])
     assert out[ids.MESSAGE]["children"] == "showing the live receiver"
     assert out[ids.REPLAY_BAR]["className"] == "replay-bar hidden"
     assert out[ids.BACK_TO_LIVE]["className"] == "button hidden"
-    assert station.replay is None
+    assert station.tab(TAB).replay is None

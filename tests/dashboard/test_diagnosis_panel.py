@@ -8,7 +8,8 @@ import pytest
 from dashboard import diagnosis_panel
 from dashboard.app import create_app
 from dashboard.diagnosis_content import diagnosis_view, guided_intro, guided_view
-from dashboard.sources import ReplaySource, Station
+from dashboard.sources import ReplaySource
+from dashboard.tabs import Station, TabView
 from receiver.analysis.diagnose import diagnose, diagnose_recent
 from receiver.analysis.guided_check import guided_check
 from receiver.analysis.sample_clip import clip_from_columns
@@ -124,7 +125,7 @@ def test_a_running_guided_check_waits_for_the_next_move():
 
 def test_runs_on_a_replayed_source(reversed_cols):
     replay = ReplaySource(read_recording(REVERSED), clock=lambda: 0.0)
-    station = Station(replay=replay, profiles={})
+    station = TabView(None, replay)
     assert "No samples" in text_of(diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")[0])
     replay.seek(6.0)
     result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "ran on request")
@@ -139,7 +140,7 @@ def test_runs_on_a_replayed_source(reversed_cols):
 
 def test_guided_panel_uses_the_samples_since_start():
     replay = ReplaySource(read_recording(GUIDED), clock=lambda: 0.0)
-    station = Station(replay=replay)
+    station = TabView(None, replay)
     replay.seek(5.5)  # the forward push is done
     run = {"robot": "practice-bot", "key": station.key(), "since_rx": None, "finished": False}
     assert [t.split()[0] for t in step_titles(diagnosis_panel.guided_panel(station, run))] == ["pass", "now", "wait"]
@@ -154,9 +155,10 @@ def test_guided_panel_uses_the_samples_since_start():
 
 
 def test_the_page_has_both_panels_and_their_callbacks():
-    station = Station(replay=ReplaySource(read_recording(REVERSED), clock=lambda: 0.0))
+    data = read_recording(REVERSED)
+    station = Station(recording=data, make_replay=lambda recording: ReplaySource(recording, clock=lambda: 0.0))
     app = create_app(station)
-    text = text_of(app.layout)
+    text = text_of(app.layout())
     assert "Diagnosis" in text and "Guided check" in text and "Start guided check" in text
     outputs = " ".join(app.callback_map)
     for component in ("diagnose-result", "diagnose-ask", "guided-steps", "guided-run"):
@@ -173,7 +175,7 @@ def test_a_robot_without_a_profile_gets_a_message_never_a_500():
     data.profiles = {}
     replay = ReplaySource(data, clock=lambda: 0.0)
     replay.seek(5.0)
-    app = create_app(Station(replay=replay))
+    app = create_app(Station(recording=data, make_replay=lambda _: replay))
     values = {f"{ids.ROBOT}.value": "practice-bot", f"{ids.DIAGNOSE_SECONDS}.value": 10,
               f"{ids.DIAGNOSE_RUN}.n_clicks": 1, f"{ids.DIAGNOSE_ASK}.data": None}
     answer = call(app, f"{ids.DIAGNOSE_RESULT}.children", values, ["diagnose-run.n_clicks"])  # asserts a 200
@@ -188,10 +190,10 @@ def test_a_robot_without_a_profile_gets_a_message_never_a_500():
 
 
 def test_no_robot_yet_and_a_robot_without_data_get_a_message():
-    from receiver.live.hub import Hub
     from dashboard.sources import LiveSource
+    from receiver.live.hub import Hub
 
-    station = Station(live=LiveSource(Hub({"practice-bot": PRACTICE})))
+    station = TabView(LiveSource(Hub({"practice-bot": PRACTICE})))
     result, confidence = diagnosis_panel.run_diagnosis(station, None, 10.0, "x")
     assert text_of(result) == "No robot heard yet: nothing to diagnose." and confidence is None
     result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")

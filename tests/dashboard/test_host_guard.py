@@ -18,7 +18,8 @@ from dashboard import server as server_module
 from dashboard.app import create_app
 from dashboard.host_guard import HostGuard, laptop_addresses, network_urls
 from dashboard.server import MAX_BODY_BYTES, DashboardServer
-from dashboard.sources import LiveSource, Station
+from dashboard.sources import LiveSource
+from dashboard.tabs import Station
 from receiver.live.hub import Hub
 
 PORT = 47480

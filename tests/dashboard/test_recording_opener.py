@@ -12,10 +12,11 @@ from dashboard.app import create_app
 from dashboard.recording_opener import Opener
 from dashboard.recordings_folder import read_from_folder
 from dashboard.settings import Settings
-from dashboard.sources import LiveSource, Station
+from dashboard.sources import LiveSource
+from dashboard.tabs import Station
 from receiver.live.hub import Hub
 from tests.conftest import FIXTURES
-from tests.dashboard.test_callbacks import call
+from tests.dashboard.test_callbacks import TAB, call
 
 REVERSED = FIXTURES / "practice-bot-figure-eight-reversed-right.jsonl.gz"
 WAIT_S = 30.0  # for the worker thread on a loaded machine; not a speed check
@@ -48,27 +49,27 @@ def test_open_answers_at_once_while_the_read_goes_on_in_its_own_thread(folder):
 
     station = live_station()
     opener = Opener(station, folder, read=slow_read)
-    assert opener.start(REVERSED.name) == f"opening {REVERSED.name} ..."
+    assert opener.start(TAB, REVERSED.name) == f"opening {REVERSED.name} ..."
     assert reading.wait(WAIT_S)
     assert threading.current_thread() is threading.main_thread()  # the caller is back while the read waits
-    assert opener.outcome() is None and station.replay is None
-    assert opener.start("other.jsonl") == f"still opening {REVERSED.name} ..."
+    assert opener.outcome(TAB) is None and station.tab(TAB).replay is None
+    assert opener.start(TAB, "other.jsonl") == f"still opening {REVERSED.name} ..."
     release.set()
     opener.join(WAIT_S)
-    outcome = opener.outcome()
+    outcome = opener.outcome(TAB)
     assert outcome.serial == 1 and outcome.opened
     assert outcome.text == f"opened {folder / REVERSED.name}: 977 messages, 10.0 s"
-    assert station.replay is not None and station.replay.label == str(folder / REVERSED.name)
+    assert station.tab(TAB).replay is not None and station.tab(TAB).replay.label == str(folder / REVERSED.name)
     station.close()
 
 
 def test_a_refused_open_leaves_the_shown_source_alone(folder):
     station = live_station()
     opener = Opener(station, folder)
-    opener.start("../etc/passwd")
+    opener.start(TAB, "../etc/passwd")
     opener.join(WAIT_S)
-    assert opener.outcome().text == "cannot open: '../etc/passwd' is not the name of a file in the recordings folder"
-    assert not opener.outcome().opened and station.replay is None
+    assert opener.outcome(TAB).text == "cannot open: '../etc/passwd' is not the name of a file in the recordings folder"
+    assert not opener.outcome(TAB).opened and station.tab(TAB).replay is None
 
 
 def test_the_page_lists_the_folder_opens_from_it_and_reports_when_done(folder):

@@ -22,7 +22,13 @@ from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from dashboard.recordings_folder import (
-    MIB, Limits, _LineCheck, copy_checked, list_recordings, open_in_folder, read_from_folder,
+    MIB,
+    Limits,
+    _LineCheck,
+    copy_checked,
+    list_recordings,
+    open_in_folder,
+    read_from_folder,
 )
 from receiver.errors import RecordingError
 from tests.conftest import FIXTURES

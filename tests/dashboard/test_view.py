@@ -8,7 +8,8 @@ import pytest
 from dashboard import view
 from dashboard.downsample import pick_rows
 from dashboard.settings import Settings, parse_length
-from dashboard.sources import ReplaySource, Station
+from dashboard.sources import ReplaySource
+from dashboard.tabs import TabView
 from receiver.errors import UsageError
 from receiver.formats.recording import read_recording
 from receiver.live.session import LinkState, RobotSnapshot
@@ -32,7 +33,7 @@ def replay():
 
 
 def test_first_refresh_draws_everything_then_only_new_rows_follow(replay):
-    station = Station(replay=replay)
+    station = TabView(None, replay)
     replay.seek(4.0)
     first = view.refresh(station, Settings(), None, 60.0, None)
     assert first.robot == "practice-bot"
@@ -71,7 +72,7 @@ def test_first_refresh_draws_everything_then_only_new_rows_follow(replay):
 
 
 def test_new_rows_are_thinned_to_the_density_of_the_window(replay):
-    station = Station(replay=replay)
+    station = TabView(None, replay)
     replay.seek(1.0)
     first = view.refresh(station, Settings(points=600), "practice-bot", 60.0, None)
     replay.seek(4.0)  # about 300 new rows; 600 points per 60 s allow 10 a second
@@ -82,7 +83,7 @@ def test_new_rows_are_thinned_to_the_density_of_the_window(replay):
 
 
 def test_seeking_back_redraws_everything(replay):
-    station = Station(replay=replay)
+    station = TabView(None, replay)
     replay.seek(6.0)
     first = view.refresh(station, Settings(), "practice-bot", 60.0, None)
     replay.seek(2.0)
@@ -92,7 +93,7 @@ def test_seeking_back_redraws_everything(replay):
 
 
 def test_long_windows_are_downsampled_keeping_the_worst_point(replay):
-    station = Station(replay=replay)
+    station = TabView(None, replay)
     replay.seek(10.0)
     out = view.refresh(station, Settings(points=200), "practice-bot", 60.0, None)
     errors = values(out.figures["errors"]["data"][0]["y"])
