@@ -26,7 +26,7 @@ import msgspec
 from receiver.errors import ProfileError, RecordingError
 from receiver.formats import block_decoder
 from receiver.formats.profile_toml import profile_from_table, profile_to_table
-from receiver.formats.protocol import Sample, decode_message
+from receiver.formats.protocol import Sample
 from receiver.odometry.columns import Columns, concat_columns
 from receiver.odometry.robot import Profile
 
@@ -274,7 +274,7 @@ class RecordingStream:
                 found = True
                 yield piece
         if lines.tail.strip():
-            result = decode_message(lines.tail)
+            result = block_decoder.decode_line(lines.tail)
             if isinstance(result, Sample):
                 tail = block_decoder.Decoded(self._tally.ticks_length)
                 tail.add([result])
