@@ -25,7 +25,7 @@ from typing import Iterable, Iterator
 
 import msgspec
 
-from receiver.formats.protocol import Failure, Reason, Sample, decode_message, split_bad_names
+from receiver.formats.protocol import Failure, Reason, Sample, WithOwnFields, decode_message, split_bad_names
 from receiver.odometry.columns import Columns, columns_from_samples
 
 PARALLEL_FROM_BYTES = 48 * 1024 * 1024  # below this, starting workers costs more than it saves
@@ -36,7 +36,7 @@ _KEEP_BELOW_BYTES = 64 * 1024 * 1024
 _TRIM_ABOVE_BYTES = 256 * 1024 * 1024
 WORKERS = 2
 LOOKAHEAD = 2 * WORKERS  # blocks on the workers at a time
-_lines = msgspec.json.Decoder(Sample)
+_lines = msgspec.json.Decoder(WithOwnFields)  # recordings keep the teams' own fields; the columns skip them
 _data = attrgetter("data")
 
 

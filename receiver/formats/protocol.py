@@ -32,11 +32,13 @@ _SignalName = Annotated[str, msgspec.Meta(min_length=1, max_length=32)]
 Signals = Annotated[dict[_SignalName, _Finite], msgspec.Meta(max_length=MAX_SIGNALS)]
 
 
-class Sample(msgspec.Struct, gc=False, omit_defaults=True):
+class Sample(msgspec.Struct, gc=False, omit_defaults=True, forbid_unknown_fields=True):
     """One wire message as validated; ``rx`` is only present in recordings.
 
     gc=False: samples hold no reference cycles, and keeping hundreds of
     thousands of them out of the garbage collector's lists keeps decoding fast.
+    Decoded as it is, a message may hold no field this protocol does not know
+    (see decode_keeping_raw); ``WithOwnFields`` decodes one that does.
     """
 
     v: Literal[1]
@@ -52,6 +54,10 @@ class Sample(msgspec.Struct, gc=False, omit_defaults=True):
     reset: bool = False
     data: Signals | None = None  # the team's own signals: name -> finite number
     rx: float | None = None
+
+
+class WithOwnFields(Sample, forbid_unknown_fields=False):
+    """A message with fields of the team's own, which decoding skips (the recording keeps its bytes)."""
 
 
 class PoseMessage(msgspec.Struct, tag_field="v", tag=PROTOCOL_VERSION, omit_defaults=True, gc=False):
@@ -98,8 +104,13 @@ class Failure:
         return f"{self.reason}: {self.detail}"
 
 
+# Known fields only: such a message nests at most 3 deep (with a batch's
+# array) and msgspec has checked every string in it as UTF-8, so the screen
+# (_screen) is needed only after these fail; then the lenient ones decode.
 _one = msgspec.json.Decoder(Sample)
 _one_or_batch = msgspec.json.Decoder(Sample | list[Sample])
+_one_lenient = msgspec.json.Decoder(WithOwnFields)
+_one_or_batch_lenient = msgspec.json.Decoder(WithOwnFields | list[WithOwnFields])
 _raw_items = msgspec.json.Decoder(list[msgspec.Raw])
 
 
@@ -144,6 +155,7 @@ _GOOD_NAMES_CACHED = 4096  # bounds the cache against a flood of made-up names
 
 
 _NAME_RULE = "1-32 of A-Z a-z 0-9 _ . -"
+_robot_of, _data_of = attrgetter("robot"), attrgetter("data")
 
 
 def split_bad_names(samples: list[Sample], with_signals: bool | None = None) -> tuple[list[Sample], list[Failure]]:
@@ -152,11 +164,11 @@ def split_bad_names(samples: list[Sample], with_signals: bool | None = None) -> 
     ``with_signals`` False says that no sample carries "data" (the caller has
     looked); None looks.
     """
-    names = set(map(attrgetter("robot"), samples))
+    names = set(map(_robot_of, samples))
     if with_signals is None:
-        with_signals = any(map(attrgetter("data"), samples))
+        with_signals = any(map(_data_of, samples))
     if with_signals:
-        names.update(*filter(None, map(attrgetter("data"), samples)))
+        names.update(*filter(None, map(_data_of, samples)))
     if names <= _good_names:
         return samples, []
     bad = {name for name in names if not _ROBOT_NAME.match(name)}
@@ -191,7 +203,7 @@ def _screen(data: bytes, check_nesting: bool = True) -> Failure | None:
     Callers first ask the cheap questions (``data.isascii()``,
     ``may_nest_deeper``) and call this only when one fails.
     """
-    if check_nesting and may_nest_deeper(data):
+    if check_nesting:
         depth = nesting_depth(data)
         if depth > MAX_NESTING:
             return Failure(Reason.NESTED_TOO_DEEP, f"arrays and objects nested {depth} deep, limit {MAX_NESTING}")
@@ -203,6 +215,11 @@ def _screen(data: bytes, check_nesting: bool = True) -> Failure | None:
     return None
 
 
+def _as_sample(sample: Sample) -> Sample:
+    """A plain Sample of the same fields (a WithOwnFields is one only by subclass)."""
+    return sample if type(sample) is Sample else Sample(*msgspec.structs.astuple(sample))
+
+
 def decode_message(data: bytes, check_nesting: bool = True) -> Sample | Failure:
     """Decode exactly one message (a recording line, or one batch element).
 
@@ -210,15 +227,18 @@ def decode_message(data: bytes, check_nesting: bool = True) -> Sample | Failure:
     afford the nesting check, so a line is refused for nesting only when the
     decoder itself cannot go that deep, in both of its paths alike.
     """
-    if not data.isascii() or check_nesting and may_nest_deeper(data):
-        refused = _screen(data, check_nesting)
-        if refused is not None:
-            return refused
     try:
         sample = _one.decode(data)
-    except (msgspec.MsgspecError, RecursionError) as exc:
-        failure = classify_error(exc, data)
-        return failure if failure.reason is Reason.NESTED_TOO_DEEP else _named(failure, data)
+    except (msgspec.MsgspecError, RecursionError):
+        if not data.isascii() or check_nesting and may_nest_deeper(data):
+            refused = _screen(data, check_nesting)
+            if refused is not None:
+                return refused
+        try:
+            sample = _as_sample(_one_lenient.decode(data))
+        except (msgspec.MsgspecError, RecursionError) as exc:
+            failure = classify_error(exc, data)
+            return failure if failure.reason is Reason.NESTED_TOO_DEEP else _named(failure, data)
     good, failures = split_bad_names([sample])
     return failures[0] if failures else sample
 
@@ -244,19 +264,24 @@ def decode_keeping_raw(data: bytes) -> tuple[list[Sample], list[Failure], list[b
     """
     if len(data) > MAX_MESSAGE_BYTES:
         return [], [Failure(Reason.TOO_LARGE, f"{len(data)} bytes, limit {MAX_MESSAGE_BYTES}")], []
-    # Two cheap questions first (a message with few brackets cannot nest
-    # deep; ASCII is UTF-8); the exact checks only when one fails.
-    if not data.isascii() or may_nest_deeper(data):
-        refused = _screen(data)
-        if refused is not None:
-            items = array_items(data)  # a batch: each element is judged on its own
-            return ([], [refused], []) if items is None else _decode_each(items)
     try:
-        decoded = _one_or_batch.decode(data)
-    except (msgspec.MsgspecError, RecursionError) as exc:
-        return _decode_items(data, exc)
+        decoded = _one_or_batch.decode(data)  # known fields only: nothing to screen (see _one)
+    except (msgspec.MsgspecError, RecursionError):
+        # Cheap questions first: ASCII is UTF-8, and a short message with at
+        # most 32 brackets cannot nest deeper. The exact checks only when one fails.
+        if not data.isascii() or may_nest_deeper(data):
+            refused = _screen(data)
+            if refused is not None:
+                items = array_items(data)  # a batch: each element is judged on its own
+                return ([], [refused], []) if items is None else _decode_each(items)
+        try:
+            decoded = _one_or_batch_lenient.decode(data)
+        except (msgspec.MsgspecError, RecursionError) as exc:
+            return _decode_items(data, exc)
+        decoded = _as_sample(decoded) if isinstance(decoded, Sample) else list(map(_as_sample, decoded))
     if isinstance(decoded, Sample):
-        if decoded.robot in _good_names and decoded.data is None:  # the usual single message
+        signals = decoded.data
+        if decoded.robot in _good_names and (signals is None or signals.keys() <= _good_names):  # the usual message
             return [decoded], [], [data]
         samples, failures = split_bad_names([decoded])
         return samples, failures, [data] if samples else []
