@@ -5,9 +5,11 @@ thread of its own or the page. Every boundary validates here once and
 raises one-line errors; the layers above assume valid data.
 
 What the layers above use:
-- protocol: ``decode``, ``decode_keeping_raw``, ``decode_message``, ``encode``, ``Sample``, ``Failure``, ``Reason``, ``PoseMessage``
+- protocol: ``decode``, ``decode_keeping_raw``, ``decode_message``, ``encode``, ``Sample`` (its ``data``: the
+  team's own signals), ``Failure``, ``Reason``, ``PoseMessage``
 - profile_toml: ``load_profile``, ``profile_from_table``, ``profile_to_table``, ``write_profile``
 - recording: ``read_recording``, ``RecordingStream``, ``RecordingData``
 - recording_writer: ``RecordingWriter``
-- block_decoder: ``worker_pool`` (large files on two cores); csv_writer: ``write``
+- block_decoder: ``worker_pool`` (large files on two cores); csv_writer: ``write``, ``text_cells``
+- json_shape: ``MAX_NESTING``; profile_limits: the bounds a profile's numbers are held to
 """
