@@ -95,15 +95,20 @@ def columns_from_samples(
 def _signals(samples: list) -> dict[str, np.ndarray]:
     """name -> (N,) float of the samples' "data", NaN where a sample lacks the name."""
     datas = list(map(attrgetter("data"), samples))
+    n = len(samples)
+    first = datas[0] if n else None
+    if first:
+        # The common case, every message with the same names: as many names in
+        # each as in the first, and each of its names found in all of them.
+        try:
+            if set(map(len, datas)) == {len(first)}:
+                return {name: np.fromiter(map(itemgetter(name), datas), dtype=float, count=n) for name in first}
+        except (TypeError, KeyError):  # a sample without data, or with other names
+            pass
     present = [d for d in datas if d]
     if not present:
         return {}
-    n = len(samples)
     names = list(dict.fromkeys(chain.from_iterable(present)))
-    first = present[0].keys()
-    if len(present) == n and all(map(first.__eq__, map(dict.keys, present))):
-        # the common case, every message with the same names: one C-level pass per name
-        return {name: np.fromiter(map(itemgetter(name), datas), dtype=float, count=n) for name in names}
     empty: dict = {}
     datas = [d or empty for d in datas]
     return {name: np.fromiter((d.get(name, _NAN) for d in datas), dtype=float, count=n) for name in names}
