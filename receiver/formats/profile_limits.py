@@ -14,9 +14,10 @@ from receiver.odometry.robot import METRES_PER_UNIT
 # Common practice, no source: a competition robot fits in a 0.46 m (18 in)
 # cube, tracking wheels are 30-100 mm across with encoders of 28-8192 counts
 # per revolution, geared 1:1 or a few to one. Each bound leaves two orders of
-# magnitude or more beyond that.
+# magnitude or more beyond that; angles may be written past a full turn
+# (420 for 60), up to ten turns either way.
 LENGTH_LIMITS_M = {"x": (-100.0, 100.0), "y": (-100.0, 100.0), "diameter": (1e-4, 10.0)}
-PLAIN_LIMITS = {"angle": (-360.0, 360.0), "counts_per_rev": (1.0, 1e9), "gear_ratio": (1e-4, 1e4)}
+PLAIN_LIMITS = {"angle": (-3600.0, 3600.0), "counts_per_rev": (1.0, 1e9), "gear_ratio": (1e-4, 1e4)}
 MAX_WHEELS = 16
 MAX_WHEEL_NAME = 32
 MAX_PROFILE_BYTES = 1024 * 1024  # a profile is a few hundred bytes
