@@ -100,7 +100,7 @@ class Decoded:
         self.lines = block.count(b"\n")
         try:
             samples = _lines.decode_lines(block)
-        except Exception:  # noqa: BLE001 - any failure sends the block line by line
+        except Exception:  # any failure sends the block line by line, whatever it is
             samples = None
         if samples is not None and (block.isascii() or _is_utf8(block)):
             with_signals = any(map(_data, samples))  # one pass: signals are rare, and then every part has them
@@ -133,7 +133,7 @@ def decode_line(line: bytes) -> Sample | Failure:
     """One recording line: a sample, or why it is skipped; never raises."""
     try:
         return decode_message(line, check_nesting=False)
-    except Exception as exc:  # noqa: BLE001 - a line the decoder chokes on is skipped, not a traceback
+    except Exception as exc:  # a line the decoder chokes on is skipped, never a traceback
         return Failure(Reason.NOT_JSON, f"the decoder failed on this line ({type(exc).__name__})")
 
 

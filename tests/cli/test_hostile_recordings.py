@@ -14,7 +14,8 @@ from tests.conftest import FIXTURES
 from tests.synthetic import constant_twist_messages, write_recording
 
 HOSTILE = [
-    b'{"v":1,"robot":"practice-bot","seq":900,"t":0.5,"ticks":[0,0,0],"x":' + b"[" * 990 + b"]" * 990 + b"}",
+    # deeper than Python lets the decoder recurse (1,000 levels by default), from any caller's stack
+    b'{"v":1,"robot":"practice-bot","seq":900,"t":0.5,"ticks":[0,0,0],"x":' + b"[" * 3000 + b"]" * 3000 + b"}",
     b'{"v":1,"robot":"practice-bot","seq":901,"t":0.5,"ticks":[0,0,0],"x":' + b"{\"k\":" * 5000 + b"1" + b"}" * 5001,
     b'{"v":1,"robot":"practice-bot","seq":902,"t":0.5,"ticks":[0,0,0],"note":"\xff\xfe"}',
     b'{"v":1,"robot":"practice-bot","seq":903,"t":0.5,"ticks":[0,0,0],"data":{"arm angle":1}}',
@@ -75,3 +76,17 @@ def test_a_header_too_deep_for_the_decoder_is_a_bad_line_not_a_header(tmp_path, 
     code = main(["recompute", str(rec), "--profile", str(FIXTURES / "practice-bot.toml")])
     err = capsys.readouterr().err
     assert code == 0 and "skipped 1 bad messages (nested_too_deep 1)" in err and "Traceback" not in err
+
+
+def test_a_line_nested_well_within_the_decoders_reach_is_read_alone_or_among_bad_lines(tmp_path, practice_profile):
+    # The reader does not hold lines to the wire's 32 (protocol.md, Recordings): its bulk path and its
+    # line-by-line path (taken when another line in the block is bad) must agree on such a line.
+    from receiver.formats.recording import read_recording
+
+    messages = constant_twist_messages(practice_profile, seconds=1.0)
+    messages[10]["x"] = json.loads("[" * 100 + "]" * 100)
+    clean = write_recording(tmp_path / "clean.jsonl", messages, [practice_profile])
+    assert len(read_recording(clean).robots["practice-bot"]) == len(messages)
+    dirty = tmp_path / "dirty.jsonl"
+    dirty.write_bytes(clean.read_bytes() + b"not json\n")
+    assert len(read_recording(dirty).robots["practice-bot"]) == len(messages)
