@@ -13,11 +13,13 @@ from dash import Dash, Input, Output, State, no_update
 from dashboard import ids, readout_texts, view
 from dashboard.pacing import PAINT_AND_ASK_NEXT, WATCHDOG, triggered_ids
 from dashboard.settings import Settings
+from dashboard.status import Badge
 from dashboard.tabs import Station
 
-VIEWS = (("track", ids.TRACK), ("poses", ids.POSES), ("errors", ids.ERRORS), ("loop", ids.LOOP))
+VIEWS = (("track", ids.TRACK), ("poses", ids.POSES), ("errors", ids.ERRORS), ("loop", ids.LOOP),
+         ("signals", ids.SIGNALS))
 DISAGREEMENT_IDS = (ids.POSITION_NOW, ids.POSITION_WORST, ids.POSITION_GROWTH, ids.HEADING_NOW, ids.HEADING_WORST,
-                    ids.HEADING_GROWTH)
+                    ids.HEADING_GROWTH, ids.GROWTH_STRETCH)
 LOOP_IDS = (ids.LOOP_RATE, ids.LOOP_MEAN, ids.LOOP_P95, ids.LOOP_MAX, ids.LOOP_LONG, ids.JITTER)
 READOUT_IDS = DISAGREEMENT_IDS + LOOP_IDS
 # The link table and the status line change with every message counted;
@@ -47,15 +49,19 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Output(ids.CURSOR, "data"),
         Output(ids.ROBOT, "options"),
         Output(ids.ROBOT, "value"),
+        Output(ids.SIGNAL_PICK, "options"),
+        Output(ids.SIGNAL_PICK, "value"),
         Input(ids.REQUEST, "data"),
         Input(ids.ROBOT, "value"),
         Input(ids.WINDOW, "value"),
+        Input(ids.SIGNAL_PICK, "value"),
         State(ids.CURSOR, "data"),
         State(ids.ROBOT, "options"),
+        State(ids.SIGNAL_PICK, "options"),
         State(ids.VIEW_ID, "data"),
     )
-    def update_views(request, robot, window_s, cursor, options, view_id):
-        refreshed = view.refresh(station.tab(view_id), settings, robot, float(window_s), cursor)
+    def update_views(request, robot, window_s, picked, cursor, options, signal_options, view_id):
+        refreshed = view.refresh(station.tab(view_id), settings, robot, float(window_s), cursor, signals=picked)
         refreshed.cursor["tick"] = (request or {}).get("tick")
         fresh = [{"label": name, "value": name} for name in refreshed.robots]
         views = [
@@ -71,7 +77,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         slow_at = (cursor or {}).get("slow_at", -math.inf)
         if refreshed.figures or not 0.0 <= refreshed.now - slow_at < SLOW_TEXTS_S:
             refreshed.cursor["slow_at"] = refreshed.now
-            paint["text"][ids.STATUS] = refreshed.status
+            paint["html"][ids.STATUS] = refreshed.status.html()
             paint["html"][ids.LINK_TABLE] = readout_texts.link_table(
                 refreshed.snapshots, refreshed.now, robot, refreshed.unattributed
             )
@@ -83,16 +89,28 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             no_update if fresh == options else fresh,
             no_update if refreshed.robot == robot else refreshed.robot,
         )
-        return (*views, histogram, refreshed.cursor, *robot_out)
+        names = refreshed.signal_names
+        signal_out = [no_update, no_update]
+        if names is not None and [o["value"] for o in signal_options or []] != names:
+            signal_out[0] = [{"label": name, "value": name} for name in names]
+        shown = refreshed.cursor.get("signals_shown")
+        if refreshed.cursor.get("signals_picked") is None and shown and shown != picked:
+            signal_out[1] = shown  # before a person picks, the picker shows what is drawn
+        return (*views, histogram, refreshed.cursor, *robot_out, *signal_out)
 
     @app.callback(
         Output(ids.TICK, "disabled"),
         Output(ids.FOLLOW, "children"),
+        Output(ids.PAGE_STATE, "className"),
+        Output(ids.STATUS, "className"),
         Input(ids.FOLLOW, "n_clicks"),
     )
     def follow(clicks):
+        # The badge is this callback's own: a paused page asks for no answer that could paint it.
         paused = bool(clicks) and clicks % 2 == 1
-        return paused, ("Follow" if paused else "Pause page")
+        if paused:
+            return True, "Follow", f"badge {Badge.PAUSED.value}", "status-line held"
+        return False, "Pause page", f"badge {Badge.PAUSED.value} hidden", "status-line"
 
     @app.callback(
         Output(ids.SCRUB, "value"),

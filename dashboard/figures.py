@@ -265,28 +265,24 @@ def pose_extension(
 
 
 def disagreement_traces(t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, unit: str) -> dict:
-    """Position error (``unit``) and heading error (degrees, a gap at each wrap) against time t (s)."""
+    """Position error (``unit``) and heading error (degrees, unwrapped: one continuous line
+    through +-180, so that a steady growth per turn is a straight slope) against time t (s)."""
     tt = as_list(t)
-    th, heading = _degrees_column(t, heading_error_deg, tt)
     data = [
         _line(tt, as_list(position_error), "position error", DISAGREEMENT_COLOUR, width=1.8),
-        _line(th, heading, "heading error", DISAGREEMENT_COLOUR, width=1.8, dash="dot", yaxis="y2"),
+        _line(tt, as_list(heading_error_deg), "heading error", DISAGREEMENT_COLOUR, width=1.8, yaxis="y2"),
     ]
-    axes = _stacked_axes([f"position ({unit})", "heading (deg)"], "time (s)", gap=0.08)
+    axes = _stacked_axes([f"position ({unit})", "heading, unwrapped (deg)"], "time (s)", gap=0.08)
     axes["yaxis"]["rangemode"] = "tozero"
-    return {"data": data, "layout": _layout(
-        showlegend=False, **axes)}
+    return {"data": data, "layout": _layout(showlegend=False, **axes)}
 
 
 def disagreement_extension(
     t: np.ndarray, position_error: np.ndarray, heading_error_deg: np.ndarray, max_points: int,
-    before: tuple[float, float] | None = None,
 ) -> tuple[dict, list[int], int]:
-    """extendData for ``disagreement_traces``; ``before``: the (t, heading error
-    in degrees) the graph already ends with."""
+    """extendData for ``disagreement_traces``."""
     tl = as_list(t)
-    th, heading = _degrees_column(t, heading_error_deg, tl, before)
-    return {"x": [tl, th], "y": [as_list(position_error), heading]}, [0, 1], max_points
+    return {"x": [tl, tl], "y": [as_list(position_error), as_list(heading_error_deg)]}, [0, 1], max_points
 
 
 def loop_traces(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_ms: np.ndarray, threshold_ms: float) -> dict:
@@ -312,32 +308,42 @@ def loop_extension(t: np.ndarray, loop_ms: np.ndarray, long_t: np.ndarray, long_
     return {"x": [as_list(t), as_list(long_t)], "y": [as_list(loop_ms), as_list(long_ms)]}, [0, 1], max_points
 
 
-def loop_histogram(loop_ms: np.ndarray, threshold_ms: float, mean_ms: float, p95_ms: float) -> dict:
-    """Counts of loop periods (ms) in 1 ms bins (wider when the spread is large);
-    bins from ``threshold_ms`` up in the highlight colour; mean and p95 marked."""
-    loop = loop_ms[np.isfinite(loop_ms)]
-    top = max(float(loop.max()) if len(loop) else 0.0, threshold_ms) + 1.0
-    width = float(max(1, math.ceil(top / 80.0)))
-    edges = np.arange(0.0, top + width, width)
-    counts, edges = np.histogram(loop, bins=edges)
+def loop_histogram(index: np.ndarray, counts: np.ndarray, bin_ms: float, threshold_ms: float, mean_ms: float,
+                   p95_ms: float) -> dict:
+    """Counts of loop periods in 1 ms bars (wider when the spread is large), from counts in
+    narrow bins (``index`` of bins ``bin_ms`` wide, ``counts``; an index may repeat); bars
+    from ``threshold_ms`` up in the highlight colour; mean and p95 marked, each label on
+    the far side of its line from the other's, so the two never overlap."""
+    per_bin = np.bincount(index, weights=counts) if len(index) else np.empty(0)
+    top_ms = max((len(per_bin)) * bin_ms if len(per_bin) else 0.0, threshold_ms) + 1.0
+    width = float(max(1, math.ceil(top_ms / 80.0)))
+    bars = int(math.ceil(top_ms / width))
+    # Each narrow bin into the bar its start falls in (a 1 ms bar holds ten 0.1 ms bins).
+    bar_of = np.minimum((np.arange(len(per_bin)) * bin_ms / width + 1e-9).astype(np.int64), bars - 1)
+    bar_counts = np.bincount(bar_of, weights=per_bin, minlength=bars).astype(np.int64) if len(per_bin) \
+        else np.zeros(bars, dtype=np.int64)
+    edges = np.arange(bars + 1) * width
     centres = (edges[:-1] + edges[1:]) / 2.0
     long = edges[:-1] >= threshold_ms
     data = [
-        {"type": "bar", "x": as_list(centres[~long]), "y": counts[~long].tolist(), "width": width,
+        {"type": "bar", "x": as_list(centres[~long]), "y": bar_counts[~long].tolist(), "width": width,
          "name": "loops", "marker": {"color": NEUTRAL}},
-        {"type": "bar", "x": as_list(centres[long]), "y": counts[long].tolist(), "width": width,
+        {"type": "bar", "x": as_list(centres[long]), "y": bar_counts[long].tolist(), "width": width,
          "name": f"longer than {threshold_ms:g} ms", "marker": {"color": LONG_LOOP_COLOUR}},
     ]
+    marks = sorted(((v, label) for v, label in ((mean_ms, "mean"), (p95_ms, "p95")) if math.isfinite(v)))
     shapes, notes = [], []
-    for k, (value, label) in enumerate(((mean_ms, "mean"), (p95_ms, "p95"))):
-        if math.isfinite(value):
-            shapes.append({"type": "line", "yref": "paper", "y0": 0, "y1": 1, "x0": value, "x1": value,
-                           "line": {"color": "#1d2733", "width": 1, "dash": "dot"}})
-            notes.append({"x": value, "y": 1.0 - 0.1 * k, "yref": "paper", "text": f"{label} {value:.1f} ms",
-                          "showarrow": False, "xanchor": "left", "font": {"size": 11}})
-    log = bool(len(loop)) and int(counts.max()) > 50
+    for k, (value, label) in enumerate(marks):
+        # The lower value's label reads leftwards from its line, the higher's rightwards.
+        leftwards = k == 0 and len(marks) == 2
+        shapes.append({"type": "line", "yref": "paper", "y0": 0, "y1": 1, "x0": value, "x1": value,
+                       "line": {"color": "#1d2733", "width": 1, "dash": "dot" if label == "mean" else "dash"}})
+        notes.append({"x": value, "y": 1.0, "yref": "paper", "yanchor": "top", "text": f"{label} {value:.1f} ms",
+                      "showarrow": False, "xanchor": "right" if leftwards else "left", "xshift": -3 if leftwards else 3,
+                      "font": {"size": 11}, "bgcolor": "rgba(255,255,255,0.8)"})
+    log = int(bar_counts.max()) > 50 if len(bar_counts) else False
     layout = _layout(
         bargap=0.05, showlegend=False, shapes=shapes, annotations=notes,
-                     xaxis={"title": {"text": "loop period (ms)"}},
-                     yaxis={"title": {"text": "loops"}, "type": "log" if log else "linear", "dtick": 1 if log else None})
+        xaxis={"title": {"text": "loop period (ms)"}, "range": [0.0, bars * width]},
+        yaxis={"title": {"text": "loops"}, "type": "log" if log else "linear", "dtick": 1 if log else None})
     return {"data": data, "layout": layout}

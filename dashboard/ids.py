@@ -14,6 +14,7 @@ CURSOR = "cursor"
 REQUEST = "request"
 REPLAY_REQUEST = "replay-request"
 STATUS = "status-line"
+PAGE_STATE = "page-state"  # the "page paused" badge, set by the pause button itself
 
 # Replay
 REPLAY_BAR = "replay-bar"
@@ -38,6 +39,8 @@ POSES = "pose-traces"
 ERRORS = "disagreement-traces"
 LOOP = "loop-traces"
 LOOP_HISTOGRAM = "loop-histogram"
+SIGNALS = "robot-signals"
+SIGNAL_PICK = "signal-pick"
 
 # Readouts (each a single number with its unit, so a person or a test can quote it)
 POSITION_NOW = "position-error-now"
@@ -46,6 +49,7 @@ POSITION_GROWTH = "position-error-per-metre"
 HEADING_NOW = "heading-error-now"
 HEADING_WORST = "heading-error-worst"
 HEADING_GROWTH = "heading-error-per-turn"
+GROWTH_STRETCH = "growth-stretch"  # over what the growth figures are computed, and their minimums
 LOOP_RATE = "loop-rate"
 LOOP_MEAN = "loop-mean"
 LOOP_P95 = "loop-p95"

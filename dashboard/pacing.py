@@ -34,7 +34,7 @@ function(n, cursor, request) {{
 # Follow after Pause page, and STALL_MS after a request whose answer never
 # came. The replay bar asks for its position with every request, while the
 # bar is shown (no request per tick when live).
-MIN_GAP_MS = 100
+MIN_GAP_MS = 80
 RESUME_MS = 1000  # more than MIN_GAP_MS: an answered request this old has no next one coming
 STALL_MS = 10_000
 _ASK = """

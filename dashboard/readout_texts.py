@@ -16,15 +16,33 @@ from receiver.live.session import LinkState, RobotSnapshot
 
 
 def disagreement_values(disagreement: readouts.Disagreement | None, unit: str) -> list[str]:
-    """Texts for POSITION_NOW ... HEADING_GROWTH, in that order."""
-    if disagreement is None:
-        disagreement = readouts.Disagreement(*([math.nan] * 6), 0.0, 0.0)
+    """Texts for POSITION_NOW ... HEADING_GROWTH, in that order, then GROWTH_STRETCH."""
     q = readouts.quote
+    if disagreement is None:
+        return [q(math.nan, unit)] * 3 + [q(math.nan, "deg")] * 3 + ["no robot to compare yet"]
+    d, g = disagreement, disagreement.growth
+    compared = math.isfinite(d.position_now)
+    per_m = q(g.position_per_m, f"{unit}/m", sign=True) if math.isfinite(g.position_per_m) or not compared \
+        else f"needs {readouts.MIN_TRAVEL_M:g} m"
+    per_turn = q(g.heading_per_turn_deg, "deg/turn", 1, sign=True) if math.isfinite(g.heading_per_turn_deg) \
+        or not compared else "needs \u00bc turn"
     return [
-        q(disagreement.position_now, unit), q(disagreement.position_worst, unit),
-        q(disagreement.position_per_m, f"{unit}/m"), q(disagreement.heading_now_deg, "deg", 1),
-        q(disagreement.heading_worst_deg, "deg", 1), q(disagreement.heading_per_turn_deg, "deg/turn", 1),
+        q(d.position_now, unit), q(d.position_worst, unit), per_m,
+        q(d.heading_now_deg, "deg", 1, sign=True), q(d.heading_worst_deg, "deg", 1), per_turn,
+        growth_stretch(d),
     ]
+
+
+def growth_stretch(d: readouts.Disagreement) -> str:
+    """Over what the growth figures are computed, and from how far a rate is shown."""
+    minimums = f"rates from {readouts.MIN_TRAVEL_M:g} m driven and \u00bc turn"
+    if not math.isfinite(d.position_now):
+        return f"growth: no pose from the robot to compare yet ({minimums})"
+    g = d.growth
+    start, end = d.stretch_s
+    since = f"the re-anchor at {start:.1f} s" if g.from_anchor else f"the window's start ({start:.1f} s)"
+    return (f"growth over {g.distance_m:.2f} m and {g.turns:.2f} turns, from {since} to {end:.1f} s; "
+            f"{minimums}")
 
 
 def loop_values(loop: readouts.LoopTiming, jitter_s: float) -> list[str]:

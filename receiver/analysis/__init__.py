@@ -12,7 +12,8 @@ What the layers above use:
 - guided_check: ``guided_check``, ``GuidedResult``, ``INSTRUCTIONS``, ``MOVES``
 - calibrate: ``spin_calibration``, ``push_calibration``, ``Calibration``
 - mistakes: ``profile_changes``, ``verdict``; wording: the shared words of results
-- growth: ``growth``, ``Growth``, ``disagreement_by_distance``, ``step_motion``, ``MIN_TRAVEL_M``, ``MIN_TURNS``
+- growth: ``growth``, ``Growth``, ``stand_in``, ``disagreement_by_distance``, ``step_motion``, ``MIN_TRAVEL_M``,
+  ``MIN_TURNS``
 - compare: ``run_row``, ``row_from_result``, ``RunRow``, ``profile_differences``
 - loop_cost: ``loop_cost``, ``LoopCost``, ``loop_cost_bins``
 """

@@ -4,6 +4,9 @@ Owns the one definition of growth that the command line and the page quote:
 the change of the disagreement per metre driven and per turn turned, over a
 stated stretch (from the last re-anchor to the last compared sample), only
 once the robot has driven or turned enough for a rate to mean something.
+``stand_in`` lets a caller that keeps
+summaries of rows that never change (the page, over a ring buffer's full
+blocks) quote the same growth over a long window from a few rows.
 Pure numpy over recompute rows; never recomputes a pose and never reads a file.
 """
 
@@ -11,6 +14,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
@@ -113,6 +117,64 @@ def growth(
         heading = heading_error[start : end + 1]
         per_turn = math.degrees(_turned(heading[np.isfinite(heading)])) / turns
     return Growth(per_m, per_turn, distance_m, turns, start, end, from_anchor)
+
+
+class StandIn(NamedTuple):
+    """Rows standing in for a longer run of rows in ``growth``'s arguments (``stand_in``),
+    each (M,): the two errors, the steps into each row, and ``row``, the index of the
+    given row each stands for (to look up its time)."""
+
+    position_error: np.ndarray
+    heading_error: np.ndarray
+    distance: np.ndarray
+    turn: np.ndarray
+    row: np.ndarray
+
+
+def stand_in(position_error: np.ndarray, heading_error: np.ndarray, distance: np.ndarray, turn: np.ndarray) -> StandIn:
+    """At most a few rows that ``growth`` reads exactly as it reads the rows given, wherever
+    they sit in its arguments: for rows without a re-anchor, each with both errors or neither
+    (as recompute rows are). ``distance`` and ``turn`` are ``step_motion``'s, the first
+    being the step into the first row. A caller that keeps these for rows that never change
+    (a full block of a ring buffer) computes growth over a long window from a few rows.
+
+    What growth reads of the rows between its first and last compared row: the sums of
+    the steps, the errors at those two rows and the heading error's turning through its
+    wraps. So the first and last compared rows stay, their steps summed; the turning
+    between them is carried by rows of heading error alone (no position error, so never
+    the first or last compared row), each stepping less than half a turn.
+    """
+    compared = np.flatnonzero(np.isfinite(position_error))
+    n = len(position_error)
+    nan = math.nan
+    if not len(compared):
+        return StandIn(np.array([nan]), np.array([nan]), np.array([distance.sum()]), np.array([turn.sum()]),
+                       np.array([n - 1]))
+    first, last = int(compared[0]), int(compared[-1])
+    pe, he, d, t, row = [position_error[first]], [heading_error[first]], [distance[: first + 1].sum()], \
+        [turn[: first + 1].sum()], [first]
+    if last > first:
+        heading = heading_error[first : last + 1]
+        turned = _turned(heading[np.isfinite(heading)])
+        steps = max(1, math.ceil(abs(turned) / 3.0))  # 3 rad: under half a turn, as _turned needs
+        he += (heading_error[first] + turned * np.arange(1, steps) / steps).tolist()
+        pe += [nan] * (steps - 1)
+        d += [0.0] * (steps - 1)
+        t += [0.0] * (steps - 1)
+        row += [first] * (steps - 1)
+        pe.append(position_error[last])
+        he.append(heading_error[last])
+        d.append(distance[first + 1 : last + 1].sum())
+        t.append(turn[first + 1 : last + 1].sum())
+        row.append(last)
+    if last < n - 1:
+        pe.append(nan)
+        he.append(nan)
+        d.append(distance[last + 1 :].sum())
+        t.append(turn[last + 1 :].sum())
+        row.append(n - 1)
+    return StandIn(np.array(pe, dtype=float), np.array(he, dtype=float), np.array(d, dtype=float),
+                   np.array(t, dtype=float), np.array(row))
 
 
 @dataclass(frozen=True)

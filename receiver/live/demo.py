@@ -4,6 +4,7 @@ Owns running simulated runs one after another until stopped, each sent in
 real time by replay.send_paced, one datagram per message: each new run goes on
 from the last one's seq and clock and starts with ``reset`` (the robot code
 set its pose), so the receiver re-anchors instead of integrating a jump.
+Each message carries two signals of the robot code's own (``own_signals``).
 The motion and the mistakes come from simulate.py; this module never decodes.
 """
 
@@ -14,12 +15,14 @@ import threading
 import tomllib
 from importlib import resources
 
+import numpy as np
+
 from receiver.formats.profile_toml import profile_from_table
 from receiver.live.replay import send_paced
 from receiver.odometry.counts import SEQ_MODULUS
 from receiver.odometry.faults import Faults
 from receiver.odometry.robot import Profile
-from receiver.sim.simulate import simulate
+from receiver.sim.simulate import Run, simulate
 
 DEMO_FAULTS = ("reversed:right",)  # the robot code reads its right wheel backwards
 DEMO_PATH = "figure-eight"
@@ -30,6 +33,17 @@ def demo_profile() -> Profile:
     """The practice robot's profile, shipped inside the package (receiver/data)."""
     text = resources.files("receiver").joinpath("data/practice-bot.toml").read_text(encoding="utf-8")
     return profile_from_table(tomllib.loads(text), "practice-bot (built in)")
+
+
+def own_signals(run: Run) -> list[dict[str, float]]:
+    """Per robot loop, two signals of the robot code's own, as a team would ``put`` them: its
+    speed over the field (profile unit per second) and its turn rate (deg/s), from its own
+    odometry; the page's Robot signals panel shows them."""
+    step = np.diff(run.robot_pose, axis=0)
+    dt = np.maximum(np.diff(run.t), 1e-6)
+    speed = np.concatenate([[0.0], np.hypot(step[:, 0], step[:, 1]) / dt])
+    rate = np.concatenate([[0.0], np.degrees(step[:, 2]) / dt])
+    return [{"drive.speed": s, "turn.rate": r} for s, r in zip(np.round(speed, 3).tolist(), np.round(rate, 2).tolist())]
 
 
 class SimulatedRobot:
@@ -78,10 +92,12 @@ class SimulatedRobot:
         while True:
             run = simulate(self.profile, self.path, self.rate_hz, self.run_s, self.seed + k, self.faults)
             shift = 0.0 if t0 is None else t0 - float(run.t[0])
+            signals = own_signals(run)
             for n, sample in enumerate(run.samples):
                 sample.seq = (sample.seq + seq0) % SEQ_MODULUS
                 sample.t += shift
                 sample.reset = k > 0 and n == 0
+                sample.data = signals[int(run.delivered[n])]
             await send_paced(run.samples, run.arrival_s, self.url)
             seq0 = (seq0 + len(run.t)) % SEQ_MODULUS
             t0 = float(run.t[-1]) + shift + 1.0 / self.rate_hz

@@ -18,6 +18,7 @@ from typing import Callable, Protocol, Sequence
 import numpy as np
 
 from receiver.formats.protocol import Failure, PoseMessage, Reason, Sample
+from receiver.live.ring_buffer import Cut
 from receiver.live.session import (
     DEFAULT_MAX_ROWS,
     DEFAULT_QUIET_AFTER_S,
@@ -235,6 +236,13 @@ class Hub:
         with self._state_lock:
             sessions = list(self.sessions.values())
         return {session.robot: session.snapshot(now, self._state_lock, loop_stats) for session in sessions}
+
+    def cut(self, robot: str, since_rx: float | None = None) -> Cut:
+        """One robot's buffered rows (those whose rx is later than ``since_rx``, with it),
+        uncopied: ``Cut.rows`` copies them, ``Cut.pieces`` reads them in place. KeyError
+        for an unknown robot."""
+        with self._state_lock:
+            return self.sessions[robot].cut(since_rx)
 
     def history(self, robot: str, since_rx: float | None = None) -> dict[str, np.ndarray]:
         """Copies of one robot's buffered rows, oldest first (see ``_RING_FIELDS``);

@@ -151,6 +151,13 @@ class Cut:
     def __len__(self) -> int:
         return sum(hi - lo for _, lo, hi in self._pieces)
 
+    @property
+    def pieces(self) -> list[tuple[dict[str, np.ndarray], int, int]]:
+        """(block, from, to), oldest first: rows ``from`` to ``to`` of each block's columns.
+        A block's rows before ``to`` never change; one whose ``to`` is its length
+        is full and never changes at all (a reader may keep what it computed of it)."""
+        return list(self._pieces)
+
     def rows(self, names: Iterable[str] | None = None) -> dict[str, np.ndarray]:
         """Copies of the columns ``names`` (all by default), oldest row first."""
         out = {}

@@ -8,7 +8,14 @@ import math
 import numpy as np
 import pytest
 
-from receiver.analysis.growth import MIN_TRAVEL_M, MIN_TURNS, disagreement_by_distance, growth, step_motion
+from receiver.analysis.growth import (
+    MIN_TRAVEL_M,
+    MIN_TURNS,
+    disagreement_by_distance,
+    growth,
+    stand_in,
+    step_motion,
+)
 from receiver.odometry.counts import SampleKind
 from receiver.odometry.integrate import wrap_angle
 
@@ -106,3 +113,31 @@ def test_disagreement_by_distance_leaves_out_jumps():
     assert curve.position_error is position_error
     distance, turn = step_motion(pose, kind)
     assert distance[5] == 0.0 and turn[5] == 0.0
+
+
+@pytest.mark.parametrize("gap", [None, slice(40, 90), slice(0, 130), slice(380, 401)])
+def test_stand_in_rows_give_the_same_growth(gap):
+    # A steady arc whose heading error passes the wrap many times, with a re-anchor at row
+    # 250; runs of rows without one replaced by their stand-ins, wherever they sit.
+    pose, position_error, _, kind, _ = _rows(turn_rad=0.05)
+    heading_error = wrap_angle(0.6 * pose[:, 2])
+    kind[250] = SampleKind.RESET
+    if gap is not None:
+        position_error[gap] = heading_error[gap] = np.nan
+    distance, turn = step_motion(pose, kind)
+    g = growth(pose, position_error, heading_error, kind, INCH_M)
+    pieces = [slice(0, 33), slice(33, 120), slice(120, 250), slice(250, 251), slice(251, 320), slice(320, 401)]
+    parts = []
+    for piece in pieces:
+        if piece.start in (0, 250):  # the re-anchors stay rows
+            parts.append((position_error[piece], heading_error[piece], distance[piece], turn[piece], kind[piece]))
+            continue
+        s = stand_in(position_error[piece], heading_error[piece], distance[piece], turn[piece])
+        assert len(s.row) < 12
+        parts.append((s.position_error, s.heading_error, s.distance, s.turn, np.full(len(s.row), SampleKind.STEP)))
+    pe, he, d, t, k = (np.concatenate(column) for column in zip(*parts))
+    short = growth(np.empty((len(pe), 3)), pe, he, k, INCH_M, steps=(d, t))
+    for name in ("position_per_m", "heading_per_turn_deg", "distance_m", "turns"):
+        ours, theirs = getattr(short, name), getattr(g, name)
+        assert (math.isnan(ours) and math.isnan(theirs)) or ours == pytest.approx(theirs, rel=1e-9), name
+    assert short.from_anchor == g.from_anchor

@@ -28,7 +28,9 @@ def wait_for(condition, what: str) -> None:
 
 
 def status(page) -> str:
-    return page.inner_text(f"#{ids.STATUS}")
+    """The status line's words after its badges: the source shown, then the robot."""
+    found = page.query_selector(f"#{ids.STATUS} .status-detail")
+    return found.inner_text() if found else ""
 
 
 def messages(page) -> int:

@@ -7,6 +7,7 @@ import math
 import numpy as np
 
 from dashboard import figures
+from dashboard.block_summary import LOOP_BIN_MS, loop_bins
 
 
 def values(field: list) -> np.ndarray:
@@ -84,12 +85,10 @@ def test_a_heading_that_wraps_at_180_gets_a_gap_not_a_line_across_the_graph():
     assert fig["data"][0]["x"] == [1.0, 2.0, 3.0, 4.0]  # x and y keep every point
     update, _, _ = figures.pose_extension(t, poses, poses, 100)
     assert update["x"][5] == [1.0, 2.0, 2.5, 3.0, 4.0] and update["y"][5][2] is None
-    # the heading error too; a step under 180 deg is drawn as it is
-    errors = figures.disagreement_traces(t, np.zeros(4), np.array([-175.0, 178.0, 100.0, -60.0]), "in")
-    assert errors["data"][1]["x"] == [1.0, 1.5, 2.0, 3.0, 4.0]
-    assert errors["data"][1]["y"] == [-175.0, None, 178.0, 100.0, -60.0]
-    update, _, _ = figures.disagreement_extension(t, np.zeros(4), np.array([10.0, 20.0, 30.0, 40.0]), 100)
-    assert update["x"] == [[1.0, 2.0, 3.0, 4.0]] * 2
+    # The heading error is drawn unwrapped (view.py unwraps it): one line, no gaps.
+    errors = figures.disagreement_traces(t, np.zeros(4), np.array([170.0, 179.0, 181.0, 190.0]), "in")
+    assert errors["data"][1]["x"] == [1.0, 2.0, 3.0, 4.0] and errors["data"][1]["y"] == [170.0, 179.0, 181.0, 190.0]
+    assert errors["layout"]["yaxis2"]["title"]["text"] == "heading, unwrapped (deg)"
 
 
 def test_appended_headings_break_at_a_wrap_between_the_graph_and_them():
@@ -100,10 +99,6 @@ def test_appended_headings_break_at_a_wrap_between_the_graph_and_them():
     update, _, _ = figures.pose_extension(t, poses, poses * [1, 1, 0], 100, before=(0.5, math.radians(175.0), 0.0))
     assert update["x"][4] == [0.75, 1.0, 2.0] and update["y"][4] == [None, -175.0, -170.0]
     assert update["x"][5] == [1.0, 2.0] and update["y"][5] == [0.0, 0.0]
-    update, _, _ = figures.disagreement_extension(t, np.zeros(2), np.array([-178.0, -170.0]), 100, before=(0.5, 179.0))
-    assert update["x"][1] == [0.75, 1.0, 2.0] and update["y"][1] == [None, -178.0, -170.0]
-    update, _, _ = figures.disagreement_extension(t, np.zeros(2), np.array([170.0, 160.0]), 100, before=(0.5, 179.0))
-    assert update["x"][1] == [1.0, 2.0]
 
 
 def test_wrapped_degrees_keeps_180_and_maps_minus_180_to_it():
@@ -137,13 +132,25 @@ def test_loop_traces_mark_long_loops_and_the_threshold():
 
 def test_loop_histogram_counts_each_loop_once_and_highlights_long_bins():
     loop_ms = np.array([10.2, 10.7, 11.1, 55.0, np.nan])
-    fig = figures.loop_histogram(loop_ms, 50.0, 21.75, 48.0)
+    index, counts = loop_bins(loop_ms / 1000.0)
+    fig = figures.loop_histogram(index, counts, LOOP_BIN_MS, 50.0, 21.75, 48.0)
     short, long = fig["data"]
     assert sum(short["y"]) == 3 and sum(long["y"]) == 1
     assert dict(zip(short["x"], short["y"]))[10.5] == 2
     assert [x for x, y in zip(long["x"], long["y"]) if y] == [55.5]
     assert min(long["x"]) > 50.0 > max(short["x"])
     assert [a["text"] for a in fig["layout"]["annotations"]] == ["mean 21.8 ms", "p95 48.0 ms"]
+
+
+def test_histogram_labels_read_away_from_each_other_so_they_never_overlap():
+    index, counts = loop_bins(np.array([0.0100, 0.0101, 0.0102]))
+    for mean_ms, p95_ms in ((10.1, 10.2), (30.0, 10.2)):  # close together; a mean above p95 (a long tail)
+        notes = figures.loop_histogram(index, counts, LOOP_BIN_MS, 50.0, mean_ms, p95_ms)["layout"]["annotations"]
+        low, high = sorted(notes, key=lambda note: note["x"])
+        assert (low["xanchor"], high["xanchor"]) == ("right", "left")  # each on the far side of its own line
+        assert low["y"] == high["y"] and low["x"] <= high["x"]
+    one = figures.loop_histogram(index, counts, LOOP_BIN_MS, 50.0, 10.1, float("nan"))["layout"]["annotations"]
+    assert [(n["text"], n["xanchor"]) for n in one] == [("mean 10.1 ms", "left")]
 
 
 def test_as_list_rounds_and_turns_nan_into_gaps():
