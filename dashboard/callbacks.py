@@ -11,7 +11,7 @@ import math
 from dash import Dash, Input, Output, State, no_update
 
 from dashboard import ids, readout_texts, view
-from dashboard.pacing import PAINT_AND_ASK_NEXT, WATCHDOG, triggered_ids
+from dashboard.pacing import PAINT_AND_ASK_NEXT, SHARE_TIME_AXIS, WATCHDOG, triggered_ids
 from dashboard.settings import Settings
 from dashboard.status import Badge
 from dashboard.tabs import Station
@@ -42,6 +42,9 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         PAINT_AND_ASK_NEXT, Input(ids.CURSOR, "data"), State(ids.REQUEST, "data"), State(ids.TICK, "disabled"),
         State(ids.REPLAY_BAR, "className"),
     )
+
+    app.clientside_callback(SHARE_TIME_AXIS, Input(ids.ERRORS, "relayoutData"), Input(ids.SIGNALS, "relayoutData"),
+                            prevent_initial_call=True)
 
     @app.callback(
         *view_outputs,

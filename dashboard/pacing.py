@@ -1,8 +1,9 @@
 """How often the page asks the server for news: the page-side scripts that pace its requests.
 
-Owns the three small scripts the callbacks register on the page (a gate for
-ticking panels, the views' watchdog, and the script that paints each
-answer and asks for the next) and ``triggered_ids``. Strings and one helper:
+Owns the small scripts the callbacks register on the page (a gate for
+ticking panels, the views' watchdog, the script that paints each answer and
+asks for the next, and the one that keeps the disagreement's and the
+signals' time axes together) and ``triggered_ids``. Strings and one helper:
 no components, no callbacks of its own.
 """
 
@@ -78,6 +79,36 @@ function(cursor, request, paused, barClass) {{
     if (wait > 0) {{ setTimeout(next, wait); }} else {{ next(); }}
 }}
 """
+# The disagreement and the robot's signals share a time axis: a zoom or pan of
+# one (its relayoutData) is applied to the other's x axis at once, in the page.
+# Applying a range the other already shows does nothing, so the two never
+# answer each other back and forth.
+SHARE_TIME_AXIS = """
+function(first, second) {
+    const ids = ["%s", "%s"];
+    const fired = (window.dash_clientside.callback_context.triggered[0] || {}).prop_id || "";
+    const from = fired.startsWith(ids[1]) ? 1 : 0;
+    const change = from ? second : first;
+    if (!change) { return; }
+    let range = null;
+    if ("xaxis.range[0]" in change) { range = [change["xaxis.range[0]"], change["xaxis.range[1]"]]; }
+    else if ("xaxis.range" in change) { range = change["xaxis.range"]; }
+    const auto = change["xaxis.autorange"] === true;
+    if (!range && !auto) { return; }
+    const other = document.querySelector("#" + ids[1 - from] + " .js-plotly-plot");
+    if (!other || !other.layout || !window.Plotly) { return; }
+    const axis = other.layout.xaxis || {};
+    if (auto) {
+        if (!axis.autorange) { window.Plotly.relayout(other, {"xaxis.autorange": true}); }
+        return;
+    }
+    const shown = axis.range || [];
+    if (shown[0] === range[0] && shown[1] === range[1]) { return; }
+    window.Plotly.relayout(other, {"xaxis.range": range});
+}
+""" % (ids.ERRORS, ids.SIGNALS)
+
+
 def triggered_ids() -> list[str]:
     """The ids of every input that triggered the running callback, first seen first.
 

@@ -71,6 +71,36 @@ def demo_url(recordings):
     assert "Traceback" not in out
 
 
+@pytest.fixture
+def serve_url(tmp_path):
+    """(page URL, UDP port) of a running ``podwatch serve`` with the practice robot's profile and
+    no robot yet (stopped with Ctrl-C after the test); it records into ``tmp_path``."""
+    port = free_port()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "receiver.cli", "serve", "--profile", str(ROOT / "replay_fixtures" / "practice-bot.toml"),
+         "--udp", "127.0.0.1:0", "--dashboard", f"127.0.0.1:{port}"],
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, cwd=tmp_path,
+    )
+    url = udp = None
+    deadline = time.monotonic() + DEMO_START_S
+    while (url is None or udp is None) and time.monotonic() < deadline:
+        line = proc.stdout.readline()
+        if not line and proc.poll() is not None:
+            break
+        page = re.search(r"dashboard: (http://\S+)", line)
+        listening = re.search(r"listening: udp \S+:(\d+)", line)
+        url = page.group(1) if page else url
+        udp = int(listening.group(1)) if listening else udp
+    if url is None or udp is None:
+        proc.kill()
+        pytest.fail(f"podwatch serve did not print its URL and port: {proc.stdout.read()}")
+    yield url, udp
+    proc.send_signal(signal.SIGINT)
+    out, _ = proc.communicate(timeout=20)
+    assert proc.returncode == 0, out
+    assert "Traceback" not in out
+
+
 def _loopback_only(route) -> None:
     host = urlsplit(route.request.url).hostname or ""
     try:
@@ -91,6 +121,25 @@ def open_pages(url: str, height: int, count: int):
             pages = []
             for _ in range(count):
                 page = browser.new_page(viewport={"width": 1400, "height": height})
+                page.route("**/*", _loopback_only)
+                page.goto(url)
+                pages.append(page)
+            yield pages
+        finally:
+            browser.close()
+
+
+@contextmanager
+def open_sized(url: str, *sizes: tuple[int, int]):
+    """One headless Chromium page on ``url`` per (width, height), in one browser; requests off
+    loopback are aborted."""
+    sync_api = pytest.importorskip("playwright.sync_api")
+    with sync_api.sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
+        try:
+            pages = []
+            for width, height in sizes:
+                page = browser.new_page(viewport={"width": width, "height": height})
                 page.route("**/*", _loopback_only)
                 page.goto(url)
                 pages.append(page)
