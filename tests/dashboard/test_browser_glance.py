@@ -101,6 +101,11 @@ def test_live_states_and_a_signal_sent_by_the_udp_sender(serve_url):
                  "the last value sent on the panel")
         arm = drawn()["arm.angle"]
         assert set(arm) <= set(robot.sent_arm) and len(arm) > 20  # values sent, none made up
+        # A zoom of the disagreement's time axis takes the signals' along (and back).
+        page.evaluate("""id => window.Plotly.relayout(document.querySelector('#' + id + ' .js-plotly-plot'),
+                                                      {'xaxis.range': [1.5, 2.5]})""", ids.ERRORS)
+        signal_range = f"() => document.querySelector('#{ids.SIGNALS} .js-plotly-plot').layout.xaxis.range"
+        wait_for(lambda: page.evaluate(signal_range) == [1.5, 2.5], "the signals' time axis to follow the zoom")
         page.click(f"#{ids.SIGNAL_PICK}")
         names = page.evaluate("() => Array.from(document.querySelectorAll('.dash-dropdown-option'))"
                               ".map(o => o.textContent)")
