@@ -63,6 +63,7 @@ class ReplaySource:
         self.samples, self.stamps = recorded_samples(data)
         if not self.samples:
             raise UsageError(f"{data.path}: the recording holds no messages")
+        self.recording = data  # the whole recording's columns, for the page's workbench
         self.profiles = {**data.profiles, **(profiles or {})}
         self.label = str(data.path)
         self.clock = clock

@@ -15,7 +15,7 @@ import threading
 import time
 from pathlib import Path
 
-from receiver.cli.common import counts_per_message, load_profiles, say, warn
+from receiver.cli.common import counts_per_message, load_profiles, profile_sources, say, warn
 from receiver.errors import UsageError
 from receiver.formats.protocol import MQTT_PREFIX as DEFAULT_PREFIX
 from receiver.live.transports.udp import DEFAULT_UDP_HOST, DEFAULT_UDP_PORT
@@ -40,7 +40,7 @@ def cmd_serve(args: argparse.Namespace) -> int:
     if udp is None and args.ws is None and args.mqtt is None:
         udp = f"{DEFAULT_UDP_HOST}:{DEFAULT_UDP_PORT}"
     profiles = load_profiles(args.profile)
-    page = _PageServer(args, profiles)
+    page = _PageServer(args, profiles, profile_sources(args.profile))
     config = ServeConfig(
         profiles=profiles,
         udp=parse_host_port(udp, DEFAULT_UDP_HOST) if udp else None,
@@ -65,12 +65,13 @@ def cmd_serve(args: argparse.Namespace) -> int:
 class _PageServer:
     """The dashboard of one command run, started once the receiver listens."""
 
-    def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile]) -> None:
+    def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile], files: dict[str, str] | None = None) -> None:
         from dashboard.settings import Settings, parse_length
         from receiver.live.serve import parse_host_port
 
         self.args = args
         self.profiles = profiles
+        self.files = {name: Path(path) for name, path in (files or {}).items()}  # where each profile was loaded from
         self.server = None
         self.station = None
         if args.dashboard:
@@ -91,7 +92,7 @@ class _PageServer:
         from dashboard.sources import LiveSource
         from dashboard.tabs import Station
 
-        self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles)
+        self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles, profile_files=self.files)
         self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
 
     def start_replay(self, data, speed: float) -> None:
@@ -107,7 +108,7 @@ class _PageServer:
             source.play()
             return source
 
-        self.station = Station(recording=data, profiles=self.profiles, make_replay=playing)
+        self.station = Station(recording=data, profiles=self.profiles, make_replay=playing, profile_files=self.files)
         self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
 
     def stop(self) -> None:
@@ -134,7 +135,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     """
     import asyncio
 
-    from receiver.live.demo import DEMO_FAULTS, SimulatedRobot, demo_profile
+    from receiver.live.demo import DEMO_FAULTS, SimulatedRobot, demo_profile, demo_profile_file
     from receiver.live.serve import ServeConfig, parse_host_port, serve
     from receiver.odometry.faults import parse_faults
 
@@ -148,7 +149,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
         udp=parse_host_port(args.udp, "127.0.0.1"),
         record=Path(args.record) if args.record else None,
     )
-    page = _PageServer(args, config.profiles)
+    page = _PageServer(args, config.profiles, {profile.name: demo_profile_file()})
     robots: list[SimulatedRobot] = []
 
     def start(receiver) -> None:
@@ -193,7 +194,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
         say(f"sent {sent} messages to {args.to}")
         return 0
     if args.dashboard:
-        return _replay_on_page(args, data, cli_profiles)
+        return _replay_on_page(args, data, cli_profiles, profile_sources(args.profile))
     hub = Hub({**data.profiles, **cli_profiles})
     started = time.monotonic()
     count = replay_into_hub(data, hub, args.speed)
@@ -203,7 +204,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
     return 0
 
 
-def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]) -> int:
+def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile], files: dict[str, str]) -> int:
     """Replay on the dashboard, playing at --speed, until Ctrl-C."""
     from dashboard.sources import REPLAY_SPEEDS
     from receiver.live.replay import recorded_span_s
@@ -212,7 +213,7 @@ def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]
     duration_s = recorded_span_s(data)
     if duration_s is None:
         raise UsageError(f"{args.recording}: the recording holds no messages")
-    page = _PageServer(args, profiles)
+    page = _PageServer(args, profiles, files)
     try:
         page.start_replay(data, args.speed if args.speed > 0 else max(REPLAY_SPEEDS))
         say(f"replaying {args.recording} ({duration_s:.1f} s) on the dashboard, from the start in each tab; "

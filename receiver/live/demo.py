@@ -24,12 +24,18 @@ from receiver.sim.simulate import simulate
 DEMO_FAULTS = ("reversed:right",)  # the robot code reads its right wheel backwards
 DEMO_PATH = "figure-eight"
 RUN_S = 120.0  # one simulated run; the next one follows on
+DEMO_PROFILE = "data/practice-bot.toml"
 
 
 def demo_profile() -> Profile:
     """The practice robot's profile, shipped inside the package (receiver/data)."""
-    text = resources.files("receiver").joinpath("data/practice-bot.toml").read_text(encoding="utf-8")
+    text = resources.files("receiver").joinpath(DEMO_PROFILE).read_text(encoding="utf-8")
     return profile_from_table(tomllib.loads(text), "practice-bot (built in)")
+
+
+def demo_profile_file() -> str:
+    """Where the demo's profile file is (the page's "download profile" keeps its comments)."""
+    return str(resources.files("receiver").joinpath(DEMO_PROFILE))
 
 
 class SimulatedRobot:

@@ -128,13 +128,13 @@ def test_runs_on_a_replayed_source(reversed_cols):
     station = TabView(None, replay)
     assert "No samples" in text_of(diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")[0])
     replay.seek(6.0)
-    result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "ran on request")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "ran on request")
     assert confidence == "high" and REVERSED_RIGHT in text_of(result)
     assert text_of(result).startswith(f"ran on request ({REVERSED}) \u00b7 practice-bot: ")
     # The same as diagnosing the recording's first 6 s offline.
     upto = reversed_cols.take(np.flatnonzero(reversed_cols.rx <= replay.now()))
     assert f"{diagnose_recent(upto, PRACTICE, 10.0).ranking[1].score:.3f}" in text_of(result)
-    result, confidence = diagnosis_panel.run_diagnosis(station, "stranger", 10.0, "x")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "stranger", 10.0, "x")
     assert confidence is None and "no profile" in text_of(result)
 
 
@@ -194,9 +194,9 @@ def test_no_robot_yet_and_a_robot_without_data_get_a_message():
     from receiver.live.hub import Hub
 
     station = TabView(LiveSource(Hub({"practice-bot": PRACTICE})))
-    result, confidence = diagnosis_panel.run_diagnosis(station, None, 10.0, "x")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, None, 10.0, "x")
     assert text_of(result) == "No robot heard yet: nothing to diagnose." and confidence is None
-    result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")
     assert text_of(result) == "No samples from practice-bot yet." and confidence is None
 
 
