@@ -25,3 +25,16 @@ class RecordingError(PodwatchError):
 
 class UsageError(PodwatchError):
     """A command-line request that cannot be carried out as given."""
+
+
+def describe(value: object, limit: int = 60) -> str:
+    """A value that arrived, as an error message shows it: one short line, whatever it is
+    (an integer of thousands of digits, a deep array, a long string)."""
+    if isinstance(value, int) and not isinstance(value, bool) and value.bit_length() > 64:
+        return f"an integer of {len(str(abs(value))) if value.bit_length() < 14000 else 'thousands of'} digits"
+    if isinstance(value, (list, tuple)):
+        return f"an array of {len(value)} items"
+    if isinstance(value, dict):
+        return f"a table of {len(value)} keys"
+    text = repr(value)
+    return text if len(text) <= limit else text[: limit - 3] + "..."

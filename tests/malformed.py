@@ -36,13 +36,18 @@ def _with_token(field: str, token: str) -> bytes:
     return text.replace("123456.5", token).encode()
 
 
+def nested(field: str, depth: int) -> bytes:
+    """A valid message plus an unknown field of arrays ``depth`` deep (the message's object makes one more)."""
+    return raw().replace(b"}", b', "%s": %s%s}' % (field.encode(), b"[" * depth, b"]" * depth))
+
+
 # (label, payload, reason); decoder-level rules only (the hub adds its own).
 DECODER_CASES: list[tuple[str, bytes, Reason]] = [
     ("not json", b"hello robot", Reason.NOT_JSON),
     ("empty", b"", Reason.NOT_JSON),
     ("truncated", raw()[:-7], Reason.NOT_JSON),
     ("two objects", raw() + raw(), Reason.NOT_JSON),
-    ("binary garbage", bytes(range(256)) * 4, Reason.NOT_JSON),
+    ("binary garbage", bytes(range(256)) * 4, Reason.NOT_UTF8),
     ("utf-8 byte-order mark", b"\xef\xbb\xbf" + raw(), Reason.NOT_JSON),
     ("version as string", raw(v="1"), Reason.WRONG_TYPE),
     ("robot as number", raw(robot=5), Reason.WRONG_TYPE),
@@ -82,5 +87,26 @@ DECODER_CASES: list[tuple[str, bytes, Reason]] = [
     ("robot name not ASCII", raw(robot="pr\u00e4ctice"), Reason.OUT_OF_RANGE),
     ("oversize", b" " * (MAX_MESSAGE_BYTES - len(raw()) + 1) + raw(), Reason.TOO_LARGE),
     ("batch over 256", json.dumps([message(seq=k) for k in range(MAX_BATCH + 1)]).encode(), Reason.TOO_LARGE),
-    ("nested too deep", b"[" * 20000 + b"]" * 20000, Reason.TOO_LARGE),
+    ("nested too deep", b"[" * 20000 + b"]" * 20000, Reason.NESTED_TOO_DEEP),
+    ("unknown field nested 33 deep", nested("extra", 32), Reason.NESTED_TOO_DEEP),
+    ("unknown field nested 990 deep", nested("extra", 989), Reason.NESTED_TOO_DEEP),
+    ("objects nested 40 deep", raw().replace(b"}", b', "o": ' + b'{"a": ' * 39 + b"1" + b"}" * 39 + b"}"),
+     Reason.NESTED_TOO_DEEP),
+    ("not UTF-8 in an unknown field", raw().replace(b"}", b', "note": "\xff\xfe"}'), Reason.NOT_UTF8),
+    ("a lone continuation byte in the name", raw().replace(b"practice-bot", b"practice\x80bot"), Reason.NOT_UTF8),
+    ("overlong UTF-8", raw().replace(b"}", b', "note": "\xc0\xaf"}'), Reason.NOT_UTF8),
+    ("UTF-16 surrogate in UTF-8", raw().replace(b"}", b', "note": "\xed\xa0\x80"}'), Reason.NOT_UTF8),
+    ("data as a list", raw(data=[1, 2]), Reason.WRONG_TYPE),
+    ("data of 33 signals", raw(data={f"s{k}": k for k in range(33)}), Reason.OUT_OF_RANGE),
+    ("signal name with a space", raw(data={"arm angle": 1.0}), Reason.OUT_OF_RANGE),
+    ("signal name of 33", raw(data={"s" * 33: 1.0}), Reason.OUT_OF_RANGE),
+    ("empty signal name", raw(data={"": 1.0}), Reason.OUT_OF_RANGE),
+    ("signal name not ASCII", raw(data={"\u00e4rm": 1.0}), Reason.OUT_OF_RANGE),
+    ("signal as string", raw(data={"arm": "up"}), Reason.WRONG_TYPE),
+    ("signal as bool", raw(data={"arm": True}), Reason.WRONG_TYPE),
+    ("signal as null", raw(data={"arm": None}), Reason.WRONG_TYPE),
+    ("signal as list", raw(data={"arm": [1.0]}), Reason.WRONG_TYPE),
+    ("NaN signal", raw(data={"arm": 123456.5}).replace(b"123456.5", b"NaN"), Reason.NON_FINITE),
+    ("1e400 signal", raw(data={"arm": 123456.5}).replace(b"123456.5", b"1e400"), Reason.NON_FINITE),
+    ("signal of 400 digits", raw(data={"arm": 10**400}), Reason.NON_FINITE),
 ]

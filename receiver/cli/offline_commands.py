@@ -11,6 +11,7 @@ import argparse
 import sys
 import time
 from collections import Counter
+from itertools import chain
 
 import numpy as np
 
@@ -111,6 +112,17 @@ def _csv_columns(robot: str, result: Result) -> list:
     ]
 
 
+def _write_with_signals(out, held: list[tuple[str, Result]]) -> None:
+    """The CSV with a ``data.NAME`` column per signal after the contract columns (``--signals``):
+    every name any robot sent, in order of first appearance; empty where a row lacks it."""
+    names = list(dict.fromkeys(chain.from_iterable(result.signals for _, result in held)))
+    out.write(CSV_HEADER[:-1] + b"".join(b",data." + name.encode() for name in names) + b"\n")
+    for robot, result in held:
+        absent = np.zeros(len(result.seq), dtype="S1")  # zero bytes: empty cells
+        cells = [csv_writer.text_cells(result.signals[name]) if name in result.signals else absent for name in names]
+        csv_writer.write(out, _csv_columns(robot, result) + cells)
+
+
 def cmd_recompute(args: argparse.Namespace) -> int:
     """Stream the recording block by block: decode, recompute, write rows.
 
@@ -127,10 +139,12 @@ def cmd_recompute(args: argparse.Namespace) -> int:
     totals: dict[str, _RobotTotals] = {}
     out = open(args.out, "wb") if args.out else sys.stdout.buffer
     lengths = counts_per_message(edit_profiles(cli_profiles, args.set))
+    held: list[tuple[str, Result]] | None = [] if args.signals else None  # the signal names are known at the end
     try:
         with block_decoder.worker_pool(args.recording) as pool, RecordingStream(args.recording, lengths, progress, pool) as rec:
             profiles = edit_profiles({**rec.profiles, **cli_profiles}, args.set)
-            out.write(CSV_HEADER)
+            if held is None:
+                out.write(CSV_HEADER)
             for robot, columns in rec:
                 if robot not in trackers:
                     profile = profiles.get(robot)
@@ -142,8 +156,13 @@ def cmd_recompute(args: argparse.Namespace) -> int:
                 tracker = trackers[robot]
                 if tracker is not None:
                     result = tracker.feed(columns)
-                    csv_writer.write(out, _csv_columns(robot, result))
+                    if held is None:
+                        csv_writer.write(out, _csv_columns(robot, result))
+                    else:
+                        held.append((robot, result))
                     totals[robot].add(result)
+            if held is not None:
+                _write_with_signals(out, held)
     finally:
         progress.close()
         if args.out:
@@ -194,6 +213,10 @@ def add_offline_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--method", default="arc", help="integration method: arc (default), midpoint or euler")
     p.add_argument("--out", metavar="CSV", help="write the CSV here instead of standard output")
     add_set_option(p)
+    p.add_argument(
+        "--signals", action="store_true",
+        help="add a column data.NAME per signal the robots sent in \"data\" (holds the rows in memory until the end)",
+    )
     p.set_defaults(run=cmd_recompute)
 
     p = sub.add_parser("simulate", help="a simulated robot that writes a recording")

@@ -25,7 +25,7 @@ from typing import Iterable, Iterator
 
 import msgspec
 
-from receiver.formats.protocol import Failure, Reason, Sample, decode_message, split_bad_names
+from receiver.formats.protocol import Failure, Reason, Sample, WithOwnFields, decode_message, split_bad_names
 from receiver.odometry.columns import Columns, columns_from_samples
 
 PARALLEL_FROM_BYTES = 48 * 1024 * 1024  # below this, starting workers costs more than it saves
@@ -36,7 +36,8 @@ _KEEP_BELOW_BYTES = 64 * 1024 * 1024
 _TRIM_ABOVE_BYTES = 256 * 1024 * 1024
 WORKERS = 2
 LOOKAHEAD = 2 * WORKERS  # blocks on the workers at a time
-_lines = msgspec.json.Decoder(Sample)
+_lines = msgspec.json.Decoder(WithOwnFields)  # recordings keep the teams' own fields; the columns skip them
+_data = attrgetter("data")
 
 
 class Decoded:
@@ -61,9 +62,10 @@ class Decoded:
         if self.first_failure is None:
             self.first_failure = (line_index, failure)
 
-    def add(self, samples: list[Sample]) -> None:
+    def add(self, samples: list[Sample], with_signals: bool | None = None) -> None:
         """Append valid samples as columns per robot; messages whose number of counts differs
         from the robot's (its ``ticks_length``, else its first message's) are counted as refused.
+        ``with_signals`` False says no sample carries "data" (None: look).
         """
         robots = set(map(attrgetter("robot"), samples))
         if len(robots) == 1:  # the common case: no regrouping pass
@@ -80,7 +82,7 @@ class Decoded:
                 self._wrong_length(robot, n_wheels, len(ticks) - len(group))
                 ticks = None
             if group:
-                self.parts[robot].append(columns_from_samples(group, n_wheels, ticks))
+                self.parts[robot].append(columns_from_samples(group, n_wheels, ticks, with_signals))
 
     def _wrong_length(self, robot: str, n_wheels: int, count: int) -> None:
         detail = f"robot {robot!r} expects {n_wheels} counts per message"
@@ -89,28 +91,50 @@ class Decoded:
     def decode_block(self, block: bytes) -> None:
         """Decode a block of complete lines into this result: all at once, or line by line
         when any line fails.
+
+        A line the decoder cannot take costs that line alone, whatever goes
+        wrong with it: a recording must stay readable. Lines are held to the
+        wire's rules but for nesting, which only the decoder's own limit
+        bounds here (``protocol.decode_message``).
         """
         self.lines = block.count(b"\n")
         try:
             samples = _lines.decode_lines(block)
-        except msgspec.MsgspecError:
-            pass
-        else:
-            samples, failures = split_bad_names(samples)
+        except Exception:  # any failure sends the block line by line, whatever it is
+            samples = None
+        if samples is not None and (block.isascii() or _is_utf8(block)):
+            with_signals = any(map(_data, samples))  # one pass: signals are rare, and then every part has them
+            samples, failures = split_bad_names(samples, with_signals)
             for failure in failures:
                 self.fail(failure, None)
-            self.add(samples)
+            self.add(samples, with_signals)
             return
         good: list[Sample] = []
         for index, line in enumerate(block.split(b"\n")):
             if not line.strip():
                 continue
-            result = decode_message(line)
+            result = decode_line(line)
             if isinstance(result, Sample):
                 good.append(result)
             else:
                 self.fail(result, index)
         self.add(good)
+
+
+def _is_utf8(data: bytes) -> bool:
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
+def decode_line(line: bytes) -> Sample | Failure:
+    """One recording line: a sample, or why it is skipped; never raises."""
+    try:
+        return decode_message(line, check_nesting=False)
+    except Exception as exc:  # a line the decoder chokes on is skipped, never a traceback
+        return Failure(Reason.NOT_JSON, f"the decoder failed on this line ({type(exc).__name__})")
 
 
 class Tally:

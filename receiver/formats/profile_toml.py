@@ -2,8 +2,9 @@
 
 This is the boundary for geometry and conventions (DESIGN.md, robot
 profile): everything behind it assumes a valid ``Profile``. A bad file is
-one ``ProfileError`` naming the file, the key and the problem. It never
-guesses a value the file did not give, except the documented defaults.
+one ``ProfileError`` naming the file, the key and the problem, whatever the
+file holds (bounds in profile_limits.py). It never guesses a value the file
+did not give, except the documented defaults.
 """
 
 from __future__ import annotations
@@ -15,7 +16,8 @@ from typing import Any
 
 import tomli_w
 
-from receiver.errors import ProfileError
+from receiver.errors import ProfileError, describe
+from receiver.formats.profile_limits import MAX_PROFILE_BYTES, MAX_WHEEL_NAME, MAX_WHEELS, out_of_limits
 from receiver.odometry.kinematics import observable
 from receiver.odometry.robot import (
     HEADING_POSITIVE,
@@ -51,29 +53,34 @@ def _take(table: dict[str, Any], key: str, kind: type, source: str, where: str, 
     value = table[key]
     if kind is float:
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise ProfileError(source, where + key, f"expected a number, got {value!r}")
-        if not math.isfinite(value):
-            raise ProfileError(source, where + key, f"expected a finite number, got {value!r}")
-        return float(value)
+            raise ProfileError(source, where + key, f"expected a number, got {describe(value)}")
+        try:
+            number = float(value)
+        except OverflowError:  # an integer past a double's range
+            number = math.inf
+        if not math.isfinite(number):
+            raise ProfileError(source, where + key, f"expected a finite number, got {describe(value)}")
+        return number
     if not isinstance(value, kind):
-        raise ProfileError(source, where + key, f"expected {kind.__name__}, got {value!r}")
+        raise ProfileError(source, where + key, f"expected {kind.__name__}, got {describe(value)}")
     return value
 
 
 def _choice(table: dict[str, Any], key: str, allowed: tuple[str, ...], source: str, where: str, default: str) -> str:
     value = _take(table, key, str, source, where, default)
     if value not in allowed:
-        raise ProfileError(source, where + key, f"unknown value {value!r}, expected one of {', '.join(allowed)}")
+        raise ProfileError(source, where + key, f"unknown value {describe(value)}, expected one of {', '.join(allowed)}")
     return value
 
 
 def _no_unknown(table: dict[str, Any], known: set[str], source: str, where: str) -> None:
     for key in table:
         if key not in known:
-            raise ProfileError(source, where + key, "unknown key (misspelt?)")
+            shown = key if key.isprintable() and len(key) <= 40 else describe(key, 40)
+            raise ProfileError(source, where + shown, "unknown key (misspelt?)")
 
 
-def _wheel(table: Any, index: int, source: str) -> Wheel:
+def _wheel(table: Any, index: int, source: str, unit: str) -> Wheel:
     where = f"wheel[{index}]."
     if not isinstance(table, dict):
         raise ProfileError(source, f"wheel[{index}]", "expected a table")
@@ -82,9 +89,16 @@ def _wheel(table: Any, index: int, source: str) -> Wheel:
     for key, kind in _WHEEL_KEYS.items():
         default = None if key in _WHEEL_REQUIRED else {"gear_ratio": 1.0, "reversed": False}[key]
         values[key] = _take(table, key, kind, source, where, default)
+    name = values["name"]
+    if not 1 <= len(name) <= MAX_WHEEL_NAME or not name.isprintable():
+        raise ProfileError(source, where + "name", f"expected 1-{MAX_WHEEL_NAME} printable characters, got {describe(name)}")
     for key in ("counts_per_rev", "diameter", "gear_ratio"):
         if values[key] <= 0:
             raise ProfileError(source, where + key, f"must be positive, got {values[key]!r}")
+    for key, value in values.items():
+        problem = out_of_limits(key, value, unit)
+        if problem:
+            raise ProfileError(source, where + key, problem)
     return Wheel(**values)
 
 
@@ -93,7 +107,7 @@ def profile_from_table(table: dict[str, Any], source: str = "<profile>") -> Prof
     _no_unknown(table, {"name", "distance_unit", "reported", "wheel", "imu"}, source, "")
     name = _take(table, "name", str, source, "")
     if not 1 <= len(name) <= 32 or not set(name) <= ROBOT_NAME_CHARS:
-        raise ProfileError(source, "name", f"expected 1-32 characters of A-Z a-z 0-9 _ . -, got {name!r}")
+        raise ProfileError(source, "name", f"expected 1-32 characters of A-Z a-z 0-9 _ . -, got {describe(name)}")
     unit = _choice(table, "distance_unit", tuple(METRES_PER_UNIT), source, "", "in")
     rep = table.get("reported", {})
     if not isinstance(rep, dict):
@@ -113,7 +127,9 @@ def profile_from_table(table: dict[str, Any], source: str = "<profile>") -> Prof
     raw_wheels = table.get("wheel")
     if not isinstance(raw_wheels, list) or not raw_wheels:
         raise ProfileError(source, "wheel", "missing: declare one [[wheel]] table per tracking wheel")
-    wheels = tuple(_wheel(w, i, source) for i, w in enumerate(raw_wheels))
+    if len(raw_wheels) > MAX_WHEELS:
+        raise ProfileError(source, "wheel", f"at most {MAX_WHEELS} tracking wheels, got {len(raw_wheels)}")
+    wheels = tuple(_wheel(w, i, source, unit) for i, w in enumerate(raw_wheels))
     names = [w.name for w in wheels]
     if len(set(names)) != len(names):
         raise ProfileError(source, "wheel.name", f"wheel names must be unique, got {names}")
@@ -133,13 +149,21 @@ def load_profile(path: str | Path) -> Profile:
     source = str(path)
     try:
         with open(path, "rb") as fh:
-            table = tomllib.load(fh)
+            text = fh.read(MAX_PROFILE_BYTES + 1)
     except FileNotFoundError:
         raise ProfileError(source, "(file)", "no such file") from None
     except OSError as exc:
         raise ProfileError(source, "(file)", f"cannot read: {exc.strerror}") from exc
+    if len(text) > MAX_PROFILE_BYTES:
+        raise ProfileError(source, "(file)", f"over {MAX_PROFILE_BYTES} bytes: a profile is a few hundred")
+    try:
+        table = tomllib.loads(text.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise ProfileError(source, "(file)", f"not valid TOML: {exc}") from exc
+        raise ProfileError(source, "(file)", f"not valid TOML: {str(exc).splitlines()[0]}") from exc
+    except RecursionError:
+        raise ProfileError(source, "(file)", "arrays or tables nested too deep to read") from None
+    except ValueError as exc:  # an integer of more digits than Python converts (4300 by default)
+        raise ProfileError(source, "(file)", f"not a usable TOML number: {str(exc).split(':')[0]}") from exc
     return profile_from_table(table, source)
 
 

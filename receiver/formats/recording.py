@@ -23,10 +23,10 @@ from typing import BinaryIO, Callable, Iterable, Iterator
 
 import msgspec
 
-from receiver.errors import ProfileError, RecordingError
+from receiver.errors import ProfileError, RecordingError, describe
 from receiver.formats import block_decoder
 from receiver.formats.profile_toml import profile_from_table, profile_to_table
-from receiver.formats.protocol import Sample, decode_message
+from receiver.formats.protocol import Sample
 from receiver.odometry.columns import Columns, concat_columns
 from receiver.odometry.robot import Profile
 
@@ -101,21 +101,23 @@ def _parse_header(line: bytes, path: str) -> tuple[str | None, dict[str, Profile
     """The header's (created, profiles), or None when the line is not a header."""
     try:
         obj = msgspec.json.decode(line)
-    except msgspec.MsgspecError:
+    except (msgspec.MsgspecError, RecursionError):  # too deep for the decoder: a bad message line, not a header
         return None
     if not isinstance(obj, dict) or "recording" not in obj:
         return None
     if obj["recording"] != RECORDING_VERSION:
-        raise RecordingError(f"{path}: recording format {obj['recording']!r} is not supported (expected {RECORDING_VERSION})")
+        raise RecordingError(
+            f"{path}: recording format {describe(obj['recording'])} is not supported (expected {RECORDING_VERSION})"
+        )
     tables = obj.get("profiles", {})
     if not isinstance(tables, dict):
         raise RecordingError(f"{path}: header 'profiles' must be an object of robot name -> profile")
     profiles = {}
     for robot, table in tables.items():
         if not isinstance(table, dict):
-            raise RecordingError(f"{path}: header profile for {robot!r} must be an object")
+            raise RecordingError(f"{path}: header profile for {describe(robot)} must be an object")
         try:
-            profiles[robot] = profile_from_table(table, f"{path} header profile {robot!r}")
+            profiles[robot] = profile_from_table(table, f"{path} header profile {describe(robot)}")
         except ProfileError as exc:
             raise RecordingError(str(exc)) from exc
     created = obj.get("created")
@@ -274,7 +276,7 @@ class RecordingStream:
                 found = True
                 yield piece
         if lines.tail.strip():
-            result = decode_message(lines.tail)
+            result = block_decoder.decode_line(lines.tail)
             if isinstance(result, Sample):
                 tail = block_decoder.Decoded(self._tally.ticks_length)
                 tail.add([result])

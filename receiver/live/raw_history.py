@@ -3,8 +3,9 @@
 Owns a bounded, time-windowed copy of what the robots sent (counts, own
 pose, IMU, loop, reset, with the receiver's rx), so that the live checks
 (diagnosis, the guided check) can run on the same ``Columns`` the offline
-commands read from a recording. The hub's ring buffers keep only results.
-Never reads a clock and never decodes: it is handed accepted samples.
+commands read from a recording, and the team's own signals ("data") for the
+page (``signals``; stored by signal_history.py). The hub's ring buffers keep
+only results. Never reads a clock and never decodes: it is handed accepted samples.
 """
 
 from __future__ import annotations
@@ -16,6 +17,7 @@ import numpy as np
 
 from receiver.formats.protocol import Sample
 from receiver.live.ring_buffer import PendingRows, RingBuffer
+from receiver.live.signal_history import Signals, SignalStore, by_name
 from receiver.odometry.columns import Columns
 
 # Long enough for a guided check done at a walking pace and for the longest
@@ -55,6 +57,7 @@ class RawHistory:
         self.window_s = window_s
         self.max_rows = max_rows
         self._robots: dict[str, _RobotRaw] = {}
+        self._signals = SignalStore(window_s)
         self._lock = threading.Lock()
 
     def __call__(self, accepted: list[tuple[Sample, str]], _updates: object = None) -> None:
@@ -77,6 +80,8 @@ class RawHistory:
                 ints += (sample.seq, sample.reset, *sample.ticks)
                 if len(ints) >= pending.limit:
                     pending.flush()
+                if sample.data:
+                    self._signals.add(sample.robot, nan if sample.rx is None else sample.rx, sample.data)
 
     def robots(self) -> list[str]:
         """The names of the robots heard, sorted."""
@@ -92,6 +97,13 @@ class RawHistory:
             raw.pending.flush()
             newest = raw.ring.newest()
             return None if newest is None else float(newest["rx"])
+
+    def signals(self, robot: str, since_rx: float | None = None) -> Signals:
+        """The robot's own signals received after ``since_rx`` (all held, without it):
+        name -> (rx, values) arrays, oldest first; empty for a robot that sent none."""
+        with self._lock:
+            held = self._signals.cut(robot, since_rx)
+        return {} if held is None else by_name(*held)  # the copy after the lock, as in columns
 
     def columns(self, robot: str, since_rx: float | None = None) -> Columns | None:
         """Copies of the robot's samples in arrival order, with ``since_rx`` only

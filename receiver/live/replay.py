@@ -38,6 +38,7 @@ def recorded_samples(data: RecordingData) -> tuple[list[Sample], np.ndarray]:
     stamps: list[np.ndarray] = []
     use_rx = all(np.isfinite(cols.rx).all() for cols in data.robots.values())
     for robot, cols in data.robots.items():
+        signals = _signals_by_row(cols.signals, len(cols))
         for k in range(len(cols)):
             pose = cols.pose[k]
             samples.append(
@@ -52,6 +53,7 @@ def recorded_samples(data: RecordingData) -> tuple[list[Sample], np.ndarray]:
                     loop=_optional(cols.loop[k]),
                     reset=bool(cols.reset[k]),
                     rx=_optional(cols.rx[k]),
+                    data=signals[k],
                 )
             )
         stamps.append(cols.rx if use_rx else cols.t)
@@ -67,6 +69,13 @@ def recorded_span_s(data: RecordingData) -> float | None:
     if not stamps:
         return None
     return float(max(s.max() for s in stamps) - min(s.min() for s in stamps))
+def _signals_by_row(signals: dict[str, np.ndarray], n: int) -> list[dict[str, float] | None]:
+    """Each row's signals as a message's "data" (None for a row without any)."""
+    if not signals:
+        return [None] * n
+    names = list(signals)
+    rows = np.column_stack([signals[name] for name in names]).tolist()
+    return [{name: v for name, v in zip(names, row) if v == v} or None for row in rows]
 
 
 def _optional(value: float) -> float | None:

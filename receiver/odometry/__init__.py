@@ -5,7 +5,7 @@ A live stream and a recording go through the same functions here.
 
 What the layers above use:
 - robot: ``Profile``, ``Wheel``, ``Reported``, ``METRES_PER_UNIT``, ``inches``, ``rolls_along``
-- columns: ``Columns``, ``columns_from_samples``, ``concat_columns``
+- columns: ``Columns`` (``signals``: the team's own, by name), ``columns_from_samples``, ``concat_columns``
 - recompute: ``Tracker`` (``feed``, ``feed_one``), ``Result``
 - kinematics: ``Kinematics``; integrate: ``integrate``, ``wrap_angle``, ``METHODS``
 - conventions: ``reported_to_rep103``, ``rep103_to_reported``, ``imu_heading_change``

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from itertools import chain
-from operator import attrgetter
+from operator import attrgetter, itemgetter
 
 import numpy as np
 
@@ -28,6 +28,9 @@ class Columns:
     loop: np.ndarray  # (N,) float, s
     reset: np.ndarray  # (N,) bool
     rx: np.ndarray = field(default=None)  # (N,) float, receiver wall clock; NaN if unknown
+    # The team's own signals (the messages' "data"): name -> (N,) float, NaN
+    # where a message did not carry that name; names in order of first appearance.
+    signals: dict[str, np.ndarray] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         if self.rx is None:
@@ -38,27 +41,36 @@ class Columns:
 
     def take(self, index: np.ndarray) -> Columns:
         """The rows at ``index`` (an index array or a boolean mask), every column alike."""
-        return Columns(*(getattr(self, name)[index] for name in COLUMN_NAMES))
+        signals = {name: values[index] for name, values in self.signals.items()}
+        return Columns(*(getattr(self, name)[index] for name in COLUMN_NAMES), signals=signals)
 
 
 COLUMN_NAMES = ("seq", "t", "ticks", "pose", "imu", "loop", "reset", "rx")
 
 
 def concat_columns(parts: list[Columns]) -> Columns:
-    """One robot's pieces end to end, in order."""
+    """One robot's pieces end to end, in order; a signal a piece lacks is NaN in its rows."""
     if len(parts) == 1:
         return parts[0]
-    return Columns(*(np.concatenate([getattr(p, name) for p in parts]) for name in COLUMN_NAMES))
+    names = dict.fromkeys(chain.from_iterable(p.signals for p in parts))
+    signals = {
+        name: np.concatenate([p.signals[name] if name in p.signals else np.full(len(p), _NAN) for p in parts])
+        for name in names
+    }
+    return Columns(*(np.concatenate([getattr(p, name) for p in parts]) for name in COLUMN_NAMES), signals=signals)
 
 
-def columns_from_samples(samples: list, n_wheels: int, ticks: list | None = None) -> Columns:
+def columns_from_samples(
+    samples: list, n_wheels: int, ticks: list | None = None, with_signals: bool | None = None
+) -> Columns:
     """Columns from decoded ``protocol.Sample`` objects of one robot.
 
     attrgetter with np.fromiter, and chain for the nested lists, keep this at
     about a tenth of the cost of np.array over lists of lists. Optional
     fields are first read as if always present (the common case); a None
     stops np.fromiter at once and that column is read again with NaN for it.
-    ``ticks`` is the samples' ticks lists when the caller already has them.
+    ``ticks`` is the samples' ticks lists when the caller already has them;
+    ``with_signals`` False says that no sample carries "data" (None: look).
     """
     n = len(samples)
     if ticks is None:
@@ -76,7 +88,30 @@ def columns_from_samples(samples: list, n_wheels: int, ticks: list | None = None
         loop=_optional_floats(samples, "loop"),
         reset=np.fromiter(map(attrgetter("reset"), samples), dtype=bool, count=n),
         rx=_optional_floats(samples, "rx"),
+        signals=_signals(samples) if with_signals or with_signals is None else {},
     )
+
+
+def _signals(samples: list) -> dict[str, np.ndarray]:
+    """name -> (N,) float of the samples' "data", NaN where a sample lacks the name."""
+    datas = list(map(attrgetter("data"), samples))
+    n = len(samples)
+    first = datas[0] if n else None
+    if first:
+        # The common case, every message with the same names: as many names in
+        # each as in the first, and each of its names found in all of them.
+        try:
+            if set(map(len, datas)) == {len(first)}:
+                return {name: np.fromiter(map(itemgetter(name), datas), dtype=float, count=n) for name in first}
+        except (TypeError, KeyError):  # a sample without data, or with other names
+            pass
+    present = [d for d in datas if d]
+    if not present:
+        return {}
+    names = list(dict.fromkeys(chain.from_iterable(present)))
+    empty: dict = {}
+    datas = [d or empty for d in datas]
+    return {name: np.fromiter((d.get(name, _NAN) for d in datas), dtype=float, count=n) for name in names}
 
 
 def _optional_floats(samples: list, name: str) -> np.ndarray:

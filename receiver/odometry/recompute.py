@@ -10,7 +10,7 @@ sample by sample give the same poses. Pure: arrays in, arrays out.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import NamedTuple
 
 import numpy as np
@@ -59,7 +59,8 @@ class Result:
     """The accepted samples of a piece, with both poses in REP 103.
 
     Headings are continuous (unwrapped) radians; position in the profile's
-    distance unit. ``reported`` rows are NaN where the robot sent no pose.
+    distance unit. ``reported`` rows are NaN where the robot sent no pose;
+    ``signals`` are the accepted rows' own signals (``Columns.signals``).
     """
 
     seq: np.ndarray
@@ -70,6 +71,7 @@ class Result:
     reported: np.ndarray
     loop_s: np.ndarray
     dropped: dict[str, int]
+    signals: dict[str, np.ndarray] = field(default_factory=dict)
 
     @property
     def position_error(self) -> np.ndarray:
@@ -176,7 +178,10 @@ class Tracker:
         self._last = (int(accepted_cols.seq[-1]), float(accepted_cols.t[-1]))
         self._last_ticks = tuple(accepted_cols.ticks[-1].tolist())
         self._last_imu = float(accepted_cols.imu[-1])
-        return Result(accepted_cols.seq, accepted_cols.t, accepted_cols.rx, kinds, poses, reported, loop_s, dropped)
+        return Result(
+            accepted_cols.seq, accepted_cols.t, accepted_cols.rx, kinds, poses, reported, loop_s, dropped,
+            accepted_cols.signals,
+        )
 
     def feed_one(self, sample) -> Step:
         """One sample (a ``protocol.Sample`` or anything with its fields).

@@ -18,7 +18,7 @@ from receiver.formats.protocol import (
     decode_message,
     encode,
 )
-from tests.malformed import DECODER_CASES, GOOD, message, raw
+from tests.malformed import DECODER_CASES, GOOD, message, raw, nested
 
 
 def test_a_valid_message_decodes_with_every_field():
@@ -142,6 +142,12 @@ BAD_AMONG_GOOD = {
     "wrong type": raw(seq="two"),
     # not even JSON: the array is split after its NaN is rewritten
     "nan": raw(t=123456.5).replace(b"123456.5", b"NaN"),
+    # the datagram is refused before decoding: the array is cut at its commas and each element judged alone
+    "nested too deep": nested("extra", 40),
+    "not UTF-8": raw(seq=2, note="x").replace(b'"x"', b'"\xff"'),
+    "bad signal name": raw(seq=2, data={"arm angle": 1.0}),
+    "too many signals": raw(seq=2, data={f"s{k}": 1.0 for k in range(33)}),
+    "NaN signal": raw(seq=2, data={"arm": 123456.5}).replace(b"123456.5", b"NaN"),
 }
 
 
@@ -175,3 +181,59 @@ def test_a_robots_own_rx_of_another_type_does_not_cost_the_message():
 def test_a_recording_line_with_an_rx_of_another_type_is_still_refused():
     # In a recording "rx" is the receiver's own clock: a line where it is not a number is damaged.
     assert isinstance(decode_message(raw(rx="wifi")), Failure)
+
+
+def test_nesting_up_to_32_is_accepted_alone_and_in_a_batch():
+    at_limit = nested("extra", 31)  # the message's own object and 31 arrays: 32 open at once
+    assert len(decode(at_limit)[0]) == 1
+    batch = b"[" + b",".join([at_limit] * 3) + b"]"  # the batch's array does not count
+    samples, failures, raws = decode_keeping_raw(batch)
+    assert failures == [] and len(samples) == 3 and raws == [at_limit] * 3
+    (failure,) = decode(nested("extra", 32))[1]
+    assert failure.reason is Reason.NESTED_TOO_DEEP and "33 deep, limit 32" in failure.detail
+
+
+def test_brackets_inside_strings_do_not_count_as_nesting():
+    note = "[" * 100 + '{\\"[[' + "}" * 3
+    samples, failures = decode(raw(note=note, other="\\" + "[" * 40))
+    assert failures == [] and samples[0].seq == 7
+
+
+def test_a_recording_line_is_refused_for_nesting_only_past_what_the_decoder_can_take():
+    assert isinstance(decode_message(nested("extra", 40), check_nesting=False), Sample)
+    failure = decode_message(nested("extra", 5000), check_nesting=False)
+    assert isinstance(failure, Failure) and failure.reason is Reason.NESTED_TOO_DEEP
+    assert decode_message(nested("extra", 40)).reason is Reason.NESTED_TOO_DEEP
+
+
+def test_text_that_is_utf8_beyond_ascii_is_accepted():
+    samples, failures, raws = decode_keeping_raw(raw(note="\u00e4rm \u2192 30\u00b0").replace(b"\\u00e4", "\u00e4".encode()))
+    assert failures == [] and len(samples) == 1
+
+
+def test_a_message_not_utf8_names_its_robot_when_it_can():
+    (failure,) = decode(raw(note="x").replace(b'"x"', b'"\xff"'))[1]
+    assert failure.reason is Reason.NOT_UTF8 and failure.robot == "practice-bot"
+
+
+def test_signals_decode_by_name_and_survive_in_the_bytes_kept():
+    data = raw(data={"arm.angle": 12.5, "motor_power": -0.25, "lift_2": 3})
+    samples, failures, raws = decode_keeping_raw(data)
+    assert failures == [] and samples[0].data == {"arm.angle": 12.5, "motor_power": -0.25, "lift_2": 3.0}
+    assert raws == [data] and json.loads(raws[0])["data"]["motor_power"] == -0.25
+    assert decode_message(encode(samples[0])) == samples[0]
+    assert decode_message(raw()).data is None and b"data" not in encode(decode_message(raw()))
+
+
+def test_32_signals_with_32_character_names_are_accepted():
+    signals = {f"{k:02d}" + "s" * 30: float(k) for k in range(32)}
+    (sample,), failures = decode(raw(data=signals))
+    assert failures == [] and sample.data == signals
+
+
+def test_a_bad_signal_costs_only_its_message_and_names_the_robot():
+    batch = [message(seq=1, data={"ok": 1.0}), message(seq=2, data={"not ok": 1.0}), message(seq=3)]
+    samples, failures = decode(json.dumps(batch).encode())
+    assert [s.seq for s in samples] == [1, 3] and samples[0].data == {"ok": 1.0}
+    assert [f.reason for f in failures] == [Reason.OUT_OF_RANGE]
+    assert "signal name 'not ok'" in failures[0].detail and failures[0].robot == "practice-bot"

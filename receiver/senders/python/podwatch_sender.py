@@ -10,6 +10,7 @@ and updating your odometry:
     sender = OdometrySender("practice-bot")            # broadcast on port 47474
     while running:
         ...
+        sender.put("arm.angle", arm_angle)             # optional: your own signals
         sender.send([left, right, back], pose=(x, y, heading))
 
 Counts go in the order of the profile's [[wheel]] tables, the pose in the
@@ -18,18 +19,29 @@ the loop: the socket is non-blocking, a datagram the network cannot take
 right now is dropped and counted, and a rate cap keeps a fast loop from
 flooding the network (podwatch bridges skipped samples from the cumulative
 counts).
+
+``put(name, value)`` adds a signal of your own (a motor power, an arm angle)
+to the next message that goes out, as the message's "data"; podwatch records
+it by name. A name of other characters than A-Z a-z 0-9 _ . -, a 33rd name
+before a message goes out, or a value that is not a number is a mistake in
+the robot code and raises ValueError at once, so it shows the first time the
+loop runs. A value that is NaN or infinite (a sensor or a division can give
+one mid-match) is skipped and counted in ``skipped_signals``: the loop never
+stops for it.
 """
 
 from __future__ import annotations
 
 import json
 import math
+import numbers
 import re
 import socket
 import time
 
 DEFAULT_PORT = 47474
 DEFAULT_MAX_RATE_HZ = 200.0
+MAX_SIGNALS = 32  # per message, as the wire protocol allows
 _ROBOT = re.compile(r"[A-Za-z0-9_.\-]{1,32}\Z")
 
 
@@ -54,8 +66,29 @@ class OdometrySender:
         self.seq = 0
         self.sent = 0
         self.dropped = 0
+        self.skipped_signals = 0
+        self._signals: dict[str, float] = {}
         self._last_send: float | None = None
         self._last_loop: float | None = None
+
+    def put(self, name: str, value: float) -> bool:
+        """Add a signal to the next message sent (the latest value of a name wins); False
+        when the value is NaN or infinite and was skipped (counted in ``skipped_signals``)."""
+        if not isinstance(name, str) or not _ROBOT.match(name):
+            raise ValueError(f"signal name must be 1-32 of A-Z a-z 0-9 _ . -, got {name!r}")
+        if isinstance(value, bool) or not isinstance(value, numbers.Real):
+            raise ValueError(f"signal {name!r} must be a number, got {value!r}")
+        if name not in self._signals and len(self._signals) >= MAX_SIGNALS:
+            raise ValueError(f"at most {MAX_SIGNALS} signals per message: {name!r} is one more")
+        try:
+            number = float(value)
+        except OverflowError:  # an integer past a double's range
+            number = math.inf
+        if not math.isfinite(number):
+            self.skipped_signals += 1
+            return False
+        self._signals[name] = number
+        return True
 
     def send(self, ticks, pose=None, imu: float | None = None, reset: bool = False) -> bool:
         """Queue one sample; True when it went out, False when skipped or dropped."""
@@ -74,6 +107,9 @@ class OdometrySender:
             message["loop"] = loop
         if reset:
             message["reset"] = True
+        if self._signals:
+            message["data"] = self._signals
+            self._signals = {}
         self.seq = (self.seq + 1) % 2**32  # wraps at 2^32, as the protocol says
         try:
             self.sock.sendto(json.dumps(message, separators=(",", ":")).encode(), self.address)

@@ -23,6 +23,7 @@ import java.util.concurrent.TimeUnit;
  * <pre>
  *   OdometrySender podwatch = OdometrySender.broadcast("practice-bot");   // in init
  *   ...
+ *   podwatch.put("arm.angle", arm.getCurrentPosition());                 // optional: your own signals
  *   podwatch.send(new long[] {left.getCurrentPosition(), right.getCurrentPosition(),
  *                 back.getCurrentPosition()}, pose.x, pose.y, pose.heading);  // every loop
  *   ...
@@ -35,6 +36,15 @@ import java.util.concurrent.TimeUnit;
  * string and hands it to a background thread through a small queue; when the
  * queue is full (the network is stuck) the sample is dropped and counted in
  * {@link #dropped()}. A rate cap keeps a fast loop from flooding the network.
+ *
+ * <p>{@link #put} adds a signal of your own (a motor power, an arm angle) to
+ * the next message that goes out, as its "data"; podwatch records it by name.
+ * A name of other characters than A-Z a-z 0-9 _ . - (or longer than 32), or a
+ * 33rd name before a message goes out, is a mistake in the robot code: it
+ * throws IllegalArgumentException at once, so it shows the first time the
+ * loop runs. A value that is NaN or infinite (a sensor or a division can give
+ * one mid-match) is skipped and counted in {@link #skippedSignals()}: the loop
+ * never stops for it. Call put and send from the same thread (the loop's).
  */
 public final class OdometrySender implements AutoCloseable {
     /** podwatch's default UDP port. */
@@ -42,6 +52,8 @@ public final class OdometrySender implements AutoCloseable {
     /** Sends above this rate are skipped; podwatch bridges the gap from the cumulative counts. */
     public static final double DEFAULT_MAX_RATE_HZ = 200.0;
     private static final int QUEUE_CAPACITY = 64;
+    /** Signals per message, as the wire protocol allows. */
+    public static final int MAX_SIGNALS = 32;
 
     private final String robot;
     private final InetAddress address;
@@ -57,6 +69,10 @@ public final class OdometrySender implements AutoCloseable {
     private long lastLoopNanos = Long.MIN_VALUE;
     private volatile long dropped = 0;
     private volatile long sent = 0;
+    private final String[] signalNames = new String[MAX_SIGNALS];
+    private final double[] signalValues = new double[MAX_SIGNALS];
+    private int signalCount = 0;
+    private volatile long skippedSignals = 0;
 
     /**
      * @param robot robot id, 1-32 characters of A-Z a-z 0-9 _ . - (the profile's name)
@@ -108,6 +124,55 @@ public final class OdometrySender implements AutoCloseable {
         queueSample(ticks, true, x, y, heading, Double.NaN, true);
     }
 
+    /**
+     * Adds a signal to the next message sent; the latest value of a name wins.
+     *
+     * @param name 1-32 characters of A-Z a-z 0-9 _ . -
+     * @param value a finite number; NaN or infinite is skipped and counted in {@link #skippedSignals()}
+     * @throws IllegalArgumentException for a bad name, or a 33rd name before the next message
+     */
+    public void put(String name, double value) {
+        if (!isName(name)) {
+            throw new IllegalArgumentException("signal name must be 1-32 of A-Z a-z 0-9 _ . -, got " + name);
+        }
+        int at = 0;
+        while (at < signalCount && !signalNames[at].equals(name)) {
+            at++;
+        }
+        if (at == MAX_SIGNALS) {
+            throw new IllegalArgumentException("at most " + MAX_SIGNALS + " signals per message: " + name + " is one more");
+        }
+        if (!Double.isFinite(value)) {
+            skippedSignals++;
+            return;
+        }
+        signalNames[at] = name;
+        signalValues[at] = value;
+        if (at == signalCount) {
+            signalCount++;
+        }
+    }
+
+    /** Signal values skipped by {@link #put} because they were NaN or infinite. */
+    public long skippedSignals() {
+        return skippedSignals;
+    }
+
+    private static boolean isName(String name) {
+        if (name == null || name.isEmpty() || name.length() > 32) {
+            return false;
+        }
+        for (int i = 0; i < name.length(); i++) {
+            char c = name.charAt(i);
+            boolean ok = (c >= 'A' && c <= 'Z') || (c >= 'a' && c <= 'z') || (c >= '0' && c <= '9')
+                || c == '_' || c == '.' || c == '-';
+            if (!ok) {
+                return false;
+            }
+        }
+        return true;
+    }
+
     /** Samples dropped because the queue to the network was full. */
     public long dropped() {
         return dropped;
@@ -150,6 +215,17 @@ public final class OdometrySender implements AutoCloseable {
         }
         if (reset) {
             json.append(",\"reset\":true");
+        }
+        if (signalCount > 0) {
+            json.append(",\"data\":{");
+            for (int i = 0; i < signalCount; i++) {
+                if (i > 0) {
+                    json.append(',');
+                }
+                json.append('"').append(signalNames[i]).append("\":").append(signalValues[i]);
+            }
+            json.append('}');
+            signalCount = 0;
         }
         json.append('}');
         seq = (seq + 1) & 0xFFFFFFFFL;  // wraps at 2^32, as the protocol says
