@@ -17,10 +17,10 @@ from dash import Dash, Input, Output, State, ctx, dcc, html, no_update
 from dashboard import ids
 from dashboard.autodiagnose import REARM_SHARE, Thresholds, Watch, WatchState, level, step
 from dashboard.diagnosis_content import diagnosis_message, diagnosis_view, guided_intro, guided_view
+from dashboard.editor_state import profile_signature
 from dashboard.pacing import ASK_WHEN_ANSWERED, triggered_ids
 from dashboard.settings import Settings
 from dashboard.tabs import Station, TabView
-from dashboard.editor_state import profile_signature
 from receiver.analysis.diagnose import Diagnosis, diagnose_recent, equivalence_classes
 from receiver.analysis.guided_check import guided_check
 from receiver.analysis.sample_clip import clip_from_columns
