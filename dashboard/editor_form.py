@@ -66,16 +66,16 @@ def _control(key: str, setting: Setting, value: Value) -> dcc.Input | dcc.Dropdo
                      value=field_text(value), debounce=DEBOUNCE_S, className="editor-text")
 
 
-def _cell(key: str, setting: Setting, value: Value, unit: str) -> list:
+def _cell(key: str, setting: Setting, value: Value, unit: str) -> html.Div:
     """A field, and for a number a handle that a person drags sideways to move it by steps
     (the page's script, assets/editor_drag.js)."""
     step = drag_step(setting, key.rsplit(".", 1)[-1], unit)
     control = _control(key, setting, value)
     if step is None:
-        return [control]
+        return html.Div(control, className="editor-field")
     handle = html.Span("\u2194", className="editor-drag", title=f"drag sideways: {step:g} {unit_label(setting, unit)} a step",
                        **{"data-field": key, "data-step": f"{step:.6g}"})
-    return [control, handle]
+    return html.Div([control, handle], className="editor-field")
 
 
 def form(profile: Profile, shown: Profile) -> html.Div:
@@ -85,7 +85,7 @@ def form(profile: Profile, shown: Profile) -> html.Div:
     unit = shown.distance_unit
     general = [
         html.Div(className="editor-row", title=setting.about, children=[
-            html.Label(_SHORT_LABELS.get(key, key), className="editor-label"), *_cell(key, setting, values[key], unit),
+            html.Label(_SHORT_LABELS.get(key, key), className="editor-label"), _cell(key, setting, values[key], unit),
             html.Span(unit_label(setting, unit), className="editor-unit"),
         ])
         for key, setting in PROFILE_SETTINGS.items()

@@ -10,7 +10,7 @@
 
   document.addEventListener("pointerdown", (event) => {
     const handle = event.target.closest ? event.target.closest(".editor-drag[data-step]") : null;
-    const input = handle ? handle.parentElement.querySelector("input") : null;
+    const input = handle ? handle.closest(".editor-field").querySelector("input") : null;
     const start = input ? parseFloat(input.value) : NaN;
     if (!Number.isFinite(start)) { return; }
     const step = handle.dataset.step;

@@ -20,11 +20,11 @@ from receiver.live.ring_buffer import PendingRows, RingBuffer
 from receiver.live.signal_history import Signals, SignalStore, by_name
 from receiver.odometry.columns import Columns
 
-# Long enough for a guided check done at a walking pace and for the longest
-# diagnosis window the page offers; bounded so a 1 kHz robot costs at most
-# about 15 MB (four wheels: 13 numbers a row).
-DEFAULT_RAW_WINDOW_S = 180.0
-DEFAULT_RAW_MAX_ROWS = 180_000
+# As long as the page's longest window (dashboard/settings.py WINDOWS_S), so
+# that the profile editor recomputes the whole window shown; bounded at 600 s
+# of a 1 kHz robot, about 54 MB with three wheels (tests/bench/bench_workbench.py).
+DEFAULT_RAW_WINDOW_S = 600.0
+DEFAULT_RAW_MAX_ROWS = 600_000
 _FLUSH_ROWS = 256
 _FLOAT_COLUMNS = (("rx", None), ("t", None), ("pose", 3), ("imu", None), ("loop", None))
 _NAN3 = (math.nan, math.nan, math.nan)
