@@ -121,7 +121,7 @@ def card(graph: Callable[[str], html.Div]) -> html.Section:
             html.Span(id=ids.COMPARE_STATUS, className="panel-status"),
         ]),
         html.Div(id=ids.COMPARE_TABLE),
-        graph(ids.COMPARE_CURVES),
+        html.Div(graph(ids.COMPARE_CURVES), id=ids.COMPARE_GRAPHS, className="hidden"),  # shown with a result
         dcc.Interval(id=ids.COMPARE_TICK, interval=POLL_MS, n_intervals=0, disabled=True),
         dcc.Store(id=ids.COMPARE_SHOWN, data=None),
     ])
@@ -154,6 +154,7 @@ def register(app: Dash, station: Station, settings: Settings, limits: Limits = L
         Output(ids.COMPARE_CURVES, "figure"),
         Output(ids.COMPARE_TICK, "disabled", allow_duplicate=True),
         Output(ids.COMPARE_SHOWN, "data"),
+        Output(ids.COMPARE_GRAPHS, "className"),
         Input(ids.COMPARE_TICK, "n_intervals"),
         State(ids.COMPARE_SHOWN, "data"),
         State(ids.VIEW_ID, "data"),
@@ -162,12 +163,12 @@ def register(app: Dash, station: Station, settings: Settings, limits: Limits = L
     def poll(_tick, shown, view_id):
         comparison = comparer.result(view_id)
         if comparison is None:
-            return no_update, no_update, no_update, True, no_update
+            return no_update, no_update, no_update, True, no_update, no_update
         if not comparison.done:
-            return comparison.progress, no_update, no_update, False, no_update
+            return comparison.progress, no_update, no_update, False, no_update, no_update
         if comparison.serial == shown:
-            return no_update, no_update, no_update, True, no_update
+            return no_update, no_update, no_update, True, no_update, no_update
         return (comparison.progress, compare_tables(comparison.runs, comparison.notes),
-                curves_figure(comparison.runs), True, comparison.serial)
+                curves_figure(comparison.runs), True, comparison.serial, "" if comparison.runs else "hidden")
 
     return comparer

@@ -102,6 +102,7 @@ COMPARE_TICK = "compare-tick"
 COMPARE_STATUS = "compare-status"
 COMPARE_TABLE = "compare-table"
 COMPARE_CURVES = "compare-curves"
+COMPARE_GRAPHS = "compare-graphs"
 COMPARE_SHOWN = "compare-shown"
 
 # What the loop rate costs (dashboard/loop_cost_panel.py)
@@ -109,3 +110,4 @@ LOOP_COST_RUN = "loop-cost-run"
 LOOP_COST_STATUS = "loop-cost-status"
 LOOP_COST_OVER_TIME = "loop-cost-over-time"
 LOOP_COST_BY_PERIOD = "loop-cost-by-period"
+LOOP_COST_GRAPHS = "loop-cost-graphs"

@@ -39,7 +39,9 @@ def card(graph: Callable[[str], html.Div]) -> html.Section:
             html.Span("the same counts integrated three ways: what a robot code that integrates simply loses "
                       "at its loop rate", id=ids.LOOP_COST_STATUS, className="panel-status"),
         ]),
-        html.Div(className="pair", children=[graph(ids.LOOP_COST_OVER_TIME), graph(ids.LOOP_COST_BY_PERIOD)]),
+        # Shown once there is something to show.
+        html.Div(id=ids.LOOP_COST_GRAPHS, className="pair hidden",
+                 children=[graph(ids.LOOP_COST_OVER_TIME), graph(ids.LOOP_COST_BY_PERIOD)]),
     ])
 
 
@@ -74,6 +76,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         Output(ids.LOOP_COST_OVER_TIME, "figure"),
         Output(ids.LOOP_COST_BY_PERIOD, "figure"),
         Output(ids.LOOP_COST_STATUS, "children"),
+        Output(ids.LOOP_COST_GRAPHS, "className"),
         Input(ids.LOOP_COST_RUN, "n_clicks"),
         State(ids.ROBOT, "value"),
         State(ids.WINDOW, "value"),
@@ -84,7 +87,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
     def compute(_clicks, robot, window_s, editor, view_id):
         session = session_of(station.tab(view_id), robot, float(window_s or settings.window_s))
         if isinstance(session, str):
-            return no_update, no_update, session
+            return no_update, no_update, session, no_update
         try:
             profile = EditorState.from_store(editor, robot).profile(session.loaded)
             edited = " with the editor's profile" if profile != session.loaded else ""
@@ -93,5 +96,5 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         try:
             over_time, by_period, line = cost_of(session, profile, settings.points)
         except PodwatchError as exc:
-            return no_update, no_update, f"cannot integrate: {exc}"
-        return over_time, by_period, line + edited
+            return no_update, no_update, f"cannot integrate: {exc}", no_update
+        return over_time, by_period, line + edited, "pair"
