@@ -13,6 +13,7 @@ grid; ``register`` is called from ``create_app``.
 
 from __future__ import annotations
 
+import time
 from pathlib import Path
 from typing import Any, Callable
 
@@ -31,6 +32,9 @@ from receiver.odometry.integrate import METHODS
 from receiver.odometry.robot import Profile
 
 FOLLOW_MS = 2000  # a live session's edited recompute follows new samples this often while the editor is open
+# ... but a follow that cost more skips ticks: at most this share of the server's time per
+# tab (600 s of a 1 kHz robot take about 0.3 s a redraw; the receiver shares the process).
+FOLLOW_SHARE = 0.1
 FIELDS = {"type": ids.EDITOR_FIELD, "key": ALL}
 OPEN, CLOSED = "editor-body", "editor-body hidden"
 
@@ -242,13 +246,18 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             state, profile, note = EditorState(robot), session.loaded, f" (the edits do not fit this profile: {exc})"
         signature = profile_signature(session.loaded)
         new_cursor = {"key": f"{view.key()}|{robot}|{signature}", "now": state.to_store()["now"]}
-        if session.whole and cursor == new_cursor:
+        same = bool(cursor) and all(cursor.get(k) == v for k, v in new_cursor.items())
+        if same and session.whole:
             return nothing  # a recording, drawn already with these edits
+        started = time.monotonic()
+        if same and triggers_seen() == [ids.EDITOR_TICK] and started - cursor["at"] < cursor["cost"] / FOLLOW_SHARE:
+            return nothing  # following live, but the last redraw was dear: this tick is skipped
         try:
             draw = draw_editor(session, loaded_results.of(session), profile, state.now.method, settings.field_size_m,
                                settings.points)
         except PodwatchError as exc:
             return no_update, no_update, None, "", f"cannot recompute: {exc}", None, no_update
+        new_cursor.update(at=started, cost=time.monotonic() - started)
         form = {"robot": robot, "loaded": signature}
         what = f"{draw.samples} samples: {session.what}{note}"
         options = command_line(state, session, station.profile_file(session.loaded))

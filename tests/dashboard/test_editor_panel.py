@@ -158,6 +158,13 @@ def test_edits_belong_to_the_tab_that_made_them(practice_profile):
     assert other[ids.EDITOR_OPTIONS]["children"].startswith("no changes")
     assert "live robot's last 60 s" in other[ids.EDITOR_WHAT]["children"]
     assert hub.profiles["practice-bot"] == practice_profile
+    # Following live, a tick comes back to a redraw as dear as a tenth of the time since the last: skipped.
+    cursor = mine[ids.EDITOR_CURSOR]["data"]
+    tick = {**redraw_values("tab-a", store), f"{ids.EDITOR_CURSOR}.data": cursor}
+    assert call(app, f"{ids.EDITOR_TRACK}.figure", {**tick, f"{ids.EDITOR_CURSOR}.data": {**cursor, "cost": 60.0}},
+                [f"{ids.EDITOR_TICK}.n_intervals"]) == {}
+    assert ids.EDITOR_TRACK in call(app, f"{ids.EDITOR_TRACK}.figure", {**tick, f"{ids.EDITOR_CURSOR}.data": {
+        **cursor, "at": cursor["at"] - 60.0}}, [f"{ids.EDITOR_TICK}.n_intervals"])
     # A closed editor costs nothing: no recompute, nothing sent.
     closed = {**redraw_values("tab-a", store), f"{ids.EDITOR_BODY}.className": "editor-body hidden"}
     assert call(app, f"{ids.EDITOR_TRACK}.figure", closed, [f"{ids.EDITOR_TICK}.n_intervals"]) == {}
