@@ -24,6 +24,10 @@ default, the practice robot wandering with loop jitter and stalls):
 (d) memory of the raw history the live editor recomputes from: one robot
     at 1 kHz (three wheels) for 180 s (the window before the editor) and
     600 s (the page's longest window, kept now), measured with tracemalloc.
+(e) the live editor's redraw at its largest: a 600 s window of a 1 kHz
+    robot in a live source's raw history (the copy of the window, both
+    recomputes, both rows, the figures), what each follow of a live
+    session costs (editor_panel.FOLLOW_SHARE bounds how often).
 The page's target is a redraw within 150 ms on the server including figures.
 Machines here are noisy: read the best and the median of R runs, and the
 load average printed with them.
@@ -51,13 +55,14 @@ from dashboard.editor_draw import draw_editor  # noqa: E402
 from dashboard.editor_panel import numbers_table  # noqa: E402
 from dashboard.editor_state import EditorState  # noqa: E402
 from dashboard.settings import Settings  # noqa: E402
-from dashboard.sources import ReplaySource  # noqa: E402
+from dashboard.sources import LiveSource, ReplaySource  # noqa: E402
 from dashboard.tabs import Station  # noqa: E402
 from dashboard.workbench_session import LoadedResults, session_of  # noqa: E402
 from receiver.analysis.compare import row_from_result  # noqa: E402
 from receiver.analysis.growth import disagreement_by_distance  # noqa: E402
 from receiver.analysis.loop_cost import loop_cost  # noqa: E402
 from receiver.cli import main as podwatch  # noqa: E402
+from receiver.live.hub import Hub  # noqa: E402
 from receiver.live.raw_history import RawHistory  # noqa: E402
 from receiver.formats.profile_set import edited_profile  # noqa: E402
 from receiver.formats.profile_toml import load_profile  # noqa: E402
@@ -146,6 +151,24 @@ def page_redraw(rec: Path, repeat: int) -> dict[str, list[float]]:
     }
 
 
+def live_redraw(repeat: int, rate_hz: float = 1000.0, window_s: float = 600.0) -> list[float]:
+    """(e): the editor's redraw of a live window of ``window_s`` at ``rate_hz``, edited."""
+    profile = load_profile(PROFILE)
+    samples = simulate(profile, "wander", rate_hz, window_s * 1.02, seed=2, imu=False).stamp_rx(1.79e9)
+    live = LiveSource(Hub({profile.name: profile}), clock=lambda: samples[-1].rx)
+    for k in range(0, len(samples), 1000):
+        live.raw([(sample, "bench") for sample in samples[k:k + 1000]])
+    view = Station(live=live).tab("bench")
+    settings = Settings()
+    edited = EditorState(profile.name).with_field(profile, "wheel.0.y", "6.3").profile(profile)
+
+    def redraw() -> None:
+        session = session_of(view, profile.name, window_s)
+        draw_editor(session, LoadedResults().of(session), edited, "arc", settings.field_size_m, settings.points)
+
+    return [_timed(redraw) for _ in range(repeat)]
+
+
 def raw_history_mb(window_s: float, rate_hz: float = 1000.0) -> float:
     """(d): MB the raw history holds for one robot of three wheels at ``rate_hz`` over ``window_s``."""
     history = RawHistory(window_s=window_s, max_rows=int(window_s * rate_hz))
@@ -218,11 +241,13 @@ def main() -> None:
         rows = sum(1 for _ in open(Path(tmp) / "out.csv")) - 1
         assert rows == n, (rows, n)
         timings.update(page_redraw(rec, args.repeat))
+    print("simulating 600 s at 1 kHz for the live window ...", file=sys.stderr)
+    timings["(e) live 600 s window at 1 kHz, edited"] = live_redraw(args.repeat)
     memory = {window: raw_history_mb(window) for window in (180.0, 600.0)}
 
     print(f"{n:,} samples ({columns.t[-1] - columns.t[0]:.0f} s at {args.rate:g} Hz), best and median of {args.repeat}:")
     for name, times in timings.items():
-        print(f"  {name:34s} {_summary(times)}")
+        print(f"  {name:40s} {_summary(times)}")
     print(f"  (b) podwatch recompute --set, {size_mb:.0f} MB file to CSV:")
     print(f"      in this process (main)         {_summary(in_process)}")
     print(f"      its own process                {_summary(own_process)}")
