@@ -8,7 +8,9 @@ import shlex
 
 import pytest
 
-from dashboard.sources import open_recording
+from dashboard.recordings_folder import Limits, read_from_folder
+from dashboard.sources import ReplaySource
+from receiver.errors import RecordingError
 from receiver.cli import main
 from tests.conftest import FIXTURES
 from tests.synthetic import constant_twist_messages, write_recording
@@ -59,14 +61,30 @@ def test_each_offline_command_skips_the_hostile_lines(hostile, tmp_path, capsys,
     assert code == 0, err
 
 
-def test_the_pages_reader_opens_it_and_keeps_every_good_message(hostile):
-    path, n = hostile
-    source = open_recording(str(path))
+def test_the_pages_reader_opens_it_and_keeps_every_good_message(tmp_path, practice_profile):
+    # The page refuses a file with a line longer than any message a receiver
+    # records (dashboard/recordings_folder.py); every shorter hostile line is
+    # skipped and every good message kept.
+    short = [line for line in HOSTILE if len(line) <= Limits().line_bytes]
+    assert len(short) < len(HOSTILE)
+    messages = constant_twist_messages(practice_profile, twist_per_s=(0.0, 0.0, 1.5), seconds=8.0)
+    path = write_recording(tmp_path / "clean.jsonl", messages, [practice_profile])
+    header, *lines = path.read_bytes().splitlines()
+    for k, bad in enumerate(short):
+        lines.insert(20 + 30 * k, bad)
+    (tmp_path / "hostile.jsonl").write_bytes(b"\n".join([header, *lines]) + b"\n")
+    source = ReplaySource(read_from_folder(tmp_path, "hostile.jsonl"))
     try:
-        assert len(source.samples) == n  # every good message, nothing of the hostile lines
-        assert sorted(s.seq for s in source.samples) == list(range(n))
+        assert len(source.samples) == len(messages)  # every good message, nothing of the hostile lines
+        assert sorted(s.seq for s in source.samples) == list(range(len(messages)))
     finally:
         source.stop()
+
+
+def test_the_page_refuses_a_file_with_a_line_longer_than_any_message(hostile):
+    path, _ = hostile
+    with pytest.raises(RecordingError, match="longer than"):
+        read_from_folder(path.parent, path.name)
 
 
 def test_a_header_too_deep_for_the_decoder_is_a_bad_line_not_a_header(tmp_path, capsys):
