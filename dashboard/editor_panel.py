@@ -104,6 +104,20 @@ def take_triggers(
     return state, message, refresh
 
 
+def field_updates(keys: list[str], shown: dict[str, Any], values: dict[str, Any], triggers: list[Any],
+                  refresh: bool) -> list[Any]:
+    """What to write into each field (``keys`` in the page's order, ``shown`` as it holds them):
+    every new value after ``refresh``; else only fields that now differ (a unit change converts
+    every length), and never the field being typed into, whose text stays as typed."""
+    def update(key: str) -> Any:
+        if key not in values:
+            return no_update
+        new = field_text(values[key])
+        typed = {"type": ids.EDITOR_FIELD, "key": key} in triggers
+        return new if refresh or (new != field_text(shown.get(key)) and not typed) else no_update
+    return [update(key) for key in keys]
+
+
 def _suggested(state: EditorState, loaded: Profile, suggestion: dict | None) -> tuple[EditorState, str]:
     if not suggestion or suggestion.get("robot") != state.robot:
         return state, "the diagnosis is of another robot: diagnose this one first"
@@ -202,13 +216,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             state = EditorState(robot)  # edits made for another profile of this robot
         triggers = triggers_seen()
         state, message, refresh = take_triggers(state, loaded, triggers, shown, method, suggestion)
-        values = field_values(state.profile(loaded))
-        fields = [
-            field_text(values[key]) if key in values and (refresh or (field_text(shown[key]) != field_text(values[key])
-                                                                      and {"type": ids.EDITOR_FIELD, "key": key} not in triggers))
-            else no_update
-            for key in keys
-        ]
+        fields = field_updates(keys, shown, field_values(state.profile(loaded)), triggers, refresh)
         opened = (OPEN, "Close editor", False) if ids.DIAGNOSE_TRY in triggers else (no_update,) * 3
         return (state.to_store(), fields, state.now.method if state.now.method != method else no_update, message,
                 *opened)

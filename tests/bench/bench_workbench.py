@@ -62,13 +62,13 @@ from receiver.analysis.compare import row_from_result  # noqa: E402
 from receiver.analysis.growth import disagreement_by_distance  # noqa: E402
 from receiver.analysis.loop_cost import loop_cost  # noqa: E402
 from receiver.cli import main as podwatch  # noqa: E402
-from receiver.live.hub import Hub  # noqa: E402
-from receiver.live.raw_history import RawHistory  # noqa: E402
 from receiver.formats.profile_set import edited_profile  # noqa: E402
 from receiver.formats.profile_toml import load_profile  # noqa: E402
 from receiver.formats.protocol import Sample  # noqa: E402
 from receiver.formats.recording import read_recording  # noqa: E402
 from receiver.formats.recording_writer import RecordingWriter  # noqa: E402
+from receiver.live.hub import Hub  # noqa: E402
+from receiver.live.raw_history import RawHistory  # noqa: E402
 from receiver.odometry.columns import columns_from_samples  # noqa: E402
 from receiver.odometry.recompute import Tracker  # noqa: E402
 from receiver.odometry.robot import METRES_PER_UNIT  # noqa: E402

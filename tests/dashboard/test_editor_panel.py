@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from dash import no_update
 
 from dashboard import ids
 from dashboard.app import create_app
@@ -20,8 +21,8 @@ from dashboard.editor_figures import (
     TRACK_LOADED,
     TRACK_REPORTED,
 )
-from dashboard.editor_panel import command_line, take_triggers
-from dashboard.editor_state import EditorState, profile_signature
+from dashboard.editor_panel import command_line, field_updates, take_triggers
+from dashboard.editor_state import EditorState, field_values, profile_signature
 from dashboard.settings import Settings
 from dashboard.sources import LiveSource, ReplaySource
 from dashboard.tabs import Station
@@ -126,6 +127,19 @@ def test_triggers_apply_in_the_order_the_page_saw_them(practice_profile):
     stale = {**suggestion, "loaded": "another"}
     kept, message, _ = take_triggers(state, practice_profile, [ids.DIAGNOSE_TRY], {}, "arc", stale)
     assert kept == state and "another profile" in message
+
+
+def test_fields_are_written_back_except_the_one_being_typed_into(practice_profile):
+    keys = ["distance_unit", "wheel.0.y", "wheel.1.y"]
+    state = EditorState("practice-bot").with_field(practice_profile, "distance_unit", "mm")
+    values = {k: v for k, v in field_values(state.profile(practice_profile)).items() if k in keys}
+    shown = {"distance_unit": "mm", "wheel.0.y": "6.25", "wheel.1.y": "-6.25"}
+    unit_field = {"type": ids.EDITOR_FIELD, "key": "distance_unit"}
+    # The unit's own field keeps its text; the lengths it converted are written.
+    assert field_updates(keys, shown, values, [unit_field], False) == [no_update, "158.75", "-158.75"]
+    typed = {"type": ids.EDITOR_FIELD, "key": "wheel.0.y"}
+    assert field_updates(keys, {**shown, "wheel.0.y": "158.750"}, values, [typed], False)[1] is no_update
+    assert field_updates(keys, shown, values, [ids.EDITOR_UNDO], True) == ["mm", "158.75", "-158.75"]
 
 
 def test_the_command_line_repeats_the_edit(replay_tab, practice_profile):
