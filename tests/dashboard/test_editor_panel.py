@@ -195,3 +195,27 @@ def _samples(data):
     for sample in samples:
         sample.rx = sample.rx + shift
     return samples
+
+
+def test_download_holds_the_tabs_edited_profile_and_names_where_it_came_from(practice_profile):
+    import tomllib
+
+    from receiver.formats.profile_toml import profile_from_table
+
+    source = FIXTURES / "practice-bot.toml"
+    station = Station(recording=read_recording(REVERSED), profiles={"practice-bot": practice_profile},
+                      make_replay=lambda data: ReplaySource(data, {"practice-bot": practice_profile}, clock=lambda: 0.0),
+                      profile_files={"practice-bot": source})
+    assert station.profile_file(practice_profile) == source
+    app = create_app(station)
+    store = edited(EditorState("practice-bot"), "wheel.1.reversed", "true", practice_profile).to_store()
+    values = {f"{ids.EDITOR_DOWNLOAD}.n_clicks": 1, f"{ids.EDITOR}.data": store, f"{ids.ROBOT}.value": "practice-bot"}
+    answer = call(app, f"{ids.EDITOR_FILE}.data", values, [f"{ids.EDITOR_DOWNLOAD}.n_clicks"])[ids.EDITOR_FILE]["data"]
+    assert answer["filename"] == "practice-bot.toml"
+    downloaded = profile_from_table(tomllib.loads(answer["content"]))
+    assert downloaded.wheels[1].reversed and downloaded.wheels[0] == practice_profile.wheels[0]
+    assert str(source) in answer["content"].splitlines()[0]
+    # Another tab, no edits: the loaded profile as it is.
+    plain = call(app, f"{ids.EDITOR_FILE}.data", {**values, f"{ids.EDITOR}.data": None, f"{ids.VIEW_ID}.data": "tab-b"},
+                 [f"{ids.EDITOR_DOWNLOAD}.n_clicks"])[ids.EDITOR_FILE]["data"]
+    assert profile_from_table(tomllib.loads(plain["content"])) == practice_profile
