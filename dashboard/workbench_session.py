@@ -20,7 +20,10 @@ from receiver.odometry.columns import Columns
 from receiver.odometry.recompute import Result, Tracker
 from receiver.odometry.robot import Profile
 
-KEPT_RESULTS = 8  # recordings' recomputes kept (a few tabs, a few robots); each about 100 bytes a sample
+# Recordings' recomputes kept: a few tabs and robots, and at most about 100 MB (a result
+# holds about 90 bytes a sample; the replay it belongs to holds ten times that).
+KEPT_RESULTS = 8
+KEPT_SAMPLES = 1_200_000
 
 
 @dataclass(frozen=True)
@@ -68,8 +71,8 @@ class LoadedResults:
     """Recomputes of recordings with their loaded profile, the newest few kept (by the
     columns' identity: a recording's columns never change while its replay is open)."""
 
-    def __init__(self, most: int = KEPT_RESULTS) -> None:
-        self.most = most
+    def __init__(self, most: int = KEPT_RESULTS, samples: int = KEPT_SAMPLES) -> None:
+        self.most, self.samples = most, samples
         self._kept: OrderedDict[tuple[int, Profile], tuple[Columns, Result]] = OrderedDict()
         self._lock = threading.Lock()
 
@@ -87,6 +90,9 @@ class LoadedResults:
         with self._lock:
             # The columns are kept with their result, so that their id is not reused meanwhile.
             self._kept[key] = (session.columns, result)
-            while len(self._kept) > self.most:
+            while len(self._kept) > 1 and (len(self._kept) > self.most or self._held() > self.samples):
                 self._kept.popitem(last=False)
         return result
+
+    def _held(self) -> int:
+        return sum(len(result.t) for _, result in self._kept.values())

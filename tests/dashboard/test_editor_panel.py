@@ -219,3 +219,26 @@ def test_download_holds_the_tabs_edited_profile_and_names_where_it_came_from(pra
     plain = call(app, f"{ids.EDITOR_FILE}.data", {**values, f"{ids.EDITOR}.data": None, f"{ids.VIEW_ID}.data": "tab-b"},
                  [f"{ids.EDITOR_DOWNLOAD}.n_clicks"])[ids.EDITOR_FILE]["data"]
     assert profile_from_table(tomllib.loads(plain["content"])) == practice_profile
+
+
+def test_kept_recomputes_are_bounded_and_reused(replay_tab):
+    _, view = replay_tab
+    session = session_of(view, "practice-bot", 60.0)
+
+    def other(name: str):
+        station = Station(recording=read_recording(FIXTURES / name), make_replay=lambda d: ReplaySource(d, clock=lambda: 0.0))
+        return session_of(station.tab("t"), "practice-bot", 60.0)
+
+    by_count = LoadedResults(most=2)
+    first = by_count.of(session)
+    assert by_count.of(session) is first  # a recording's samples never change: recomputed once
+    fixed = other("practice-bot-figure-eight.jsonl.gz")
+    fixed_result = by_count.of(fixed)
+    assert by_count.of(session) is first
+    by_count.of(other("practice-bot-figure-eight-wide-track.jsonl.gz"))
+    # Three recordings, two kept: the one used longest ago went.
+    assert by_count.of(session) is first and by_count.of(fixed) is not fixed_result
+    by_samples = LoadedResults(samples=1500)  # 977 samples each: room for one
+    first = by_samples.of(session)
+    by_samples.of(other("practice-bot-figure-eight.jsonl.gz"))
+    assert len(by_samples._kept) == 1 and by_samples.of(session) is not first
