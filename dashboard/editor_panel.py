@@ -13,6 +13,7 @@ grid; ``register`` is called from ``create_app``.
 
 from __future__ import annotations
 
+import math
 import time
 from pathlib import Path
 from typing import Any, Callable
@@ -147,7 +148,7 @@ def numbers_table(draw: EditorDraw) -> html.Table:
 
 
 def _quote(value: float, unit: str, digits: int) -> str:
-    return f"{value:.{digits}f} {unit}" if value == value else f"\u2014 {unit}"
+    return f"{value:.{digits}f} {unit}" if math.isfinite(value) else f"\u2014 {unit}"
 
 
 def command_line(state: EditorState, session: Session, profile_file: Path | None) -> str:
@@ -202,9 +203,9 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         State(ids.DIAGNOSE_SUGGESTION, "data"),
         prevent_initial_call=True,
     )
-    def edit(_values, _undo, _reset, method, _try, data, robot, view_id, suggestion):
+    def edit(values, _undo, _reset, method, _try, data, robot, view_id, suggestion):
         keys = [item["id"]["key"] for item in ctx.outputs_list[1]]
-        shown = dict(zip(keys, _values))
+        shown = dict(zip(keys, values))
         fields = [no_update] * len(keys)
         loaded = station.tab(view_id).profile(robot)
         if loaded is None:
