@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -24,6 +24,7 @@ from receiver.odometry.robot import (
     HEADING_UNITS,
     HEADING_ZEROS,
     Y_AXES,
+    CONVENTION_KEYS,
     Profile,
     Reported,
     inches,
@@ -245,10 +246,10 @@ def _conventions_that_fit(moves: dict[str, Move], pose: np.ndarray, profile: Pro
     """The [reported] settings closest to the profile's under which every pose check passes."""
     current = profile.reported
     choices = [HEADING_UNITS, HEADING_POSITIVE, Y_AXES, HEADING_ZEROS]
-    names = [f.name for f in fields(Reported)]
+    names = CONVENTION_KEYS
     fitting = []
     for values in itertools.product(*choices):
-        candidate = Reported(**dict(zip(names, values)))
+        candidate = replace(current, **dict(zip(names, values)))
         reading = _read_pose(moves, pose, candidate, profile.distance_unit)
         if reading and reading.x_ok and reading.y_ok and reading.heading_ok and reading.zero_ok:
             fitting.append((sum(getattr(candidate, n) != getattr(current, n) for n in names), values, candidate))

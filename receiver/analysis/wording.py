@@ -27,17 +27,52 @@ def clip_line(diagnosis: Diagnosis) -> str:
 
 
 def confidence_words(diagnosis: Diagnosis) -> str:
-    """The confidence with the margin behind it, e.g. "high (margin 3.1 in between ...)"."""
+    """The confidence with the margin and the noise it was judged against, e.g. "high (margin
+    2.98 in between the first and second explanation after the fit, 5640 times the clip's noise ...)".
+    """
+    unit = diagnosis.profile.distance_unit
+    noise = diagnosis.noise
+    if not math.isfinite(diagnosis.margin):
+        return f"{diagnosis.confidence} (only one explanation fits this profile)"
     return (
-        f"{diagnosis.confidence} (margin {diagnosis.margin:.3g} {diagnosis.profile.distance_unit} "
-        "between the first and second explanation)"
+        f"{diagnosis.confidence} (margin {diagnosis.margin:.3g} {unit} between the first and second "
+        f"explanation after the fit, {_times(diagnosis.margin_over_noise)} the clip's noise of {noise.level:.2g} {unit}: "
+        f"the best explanation's residual {noise.residual:.2g} {unit}, encoder resolution "
+        f"{noise.resolution:.2g} {unit}, {noise.samples} samples)"
     )
+
+
+def _times(ratio: float) -> str:
+    return f"{ratio:.2g} times" if ratio < 10 else f"{ratio:,.0f} times"
+
+
+def integration_words(diagnosis: Diagnosis) -> str:
+    """How the robot code integrates, and how podwatch knows, e.g. "euler, as the profile says"."""
+    found = diagnosis.integration
+    unit = diagnosis.profile.distance_unit
+    if found.source == "profile":
+        return f"{found.method}, as the profile says ([reported] integration)"
+    if found.source == "given":
+        return f"{found.method}, as given"
+    left = ", ".join(f"{m} {found.residuals[m]:.2g}" for m in sorted(found.residuals, key=found.residuals.get))
+    if found.source == "clip":
+        return f"{found.method}, found from the clip (RMS after the fit: {left} {unit})"
+    tied = " or ".join(found.tied)
+    out = f"{tied}: the clip cannot tell {'these' if len(found.tied) > 1 else 'it'} apart (RMS after the fit: {left} {unit})"
+    if found.ruled_out:
+        out += f"; {' and '.join(found.ruled_out)} ruled out"
+    return out + f"; compared with {found.method}"
 
 
 def explanation_id(ranked: Ranked) -> str:
     """A hypothesis id with the ones no clip can tell from it, e.g. "swapped:left,right (= ...)"."""
     equivalent = ranked.equivalent
     return ranked.hypothesis.id + (f" (= {', '.join(h.id for h in equivalent)})" if equivalent else "")
+
+
+def after_fit(ranked: Ranked) -> str:
+    """A leader's score after its fit (3 decimals), or "-" for an explanation not refined."""
+    return f"{ranked.fit.score_after:.3f}" if ranked.fit is not None else "-"
 
 
 def change_lines(changes: list[str], say_none: bool = True) -> list[str]:

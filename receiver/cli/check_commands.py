@@ -25,8 +25,10 @@ from receiver.analysis.wording import (
     change_lines,
     clip_line,
     confidence_words,
+    after_fit,
     explanation_id,
     guided_outcome,
+    integration_words,
 )
 from receiver.cli.common import counts_per_message, load_profiles, warn
 from receiver.errors import UsageError
@@ -83,12 +85,13 @@ def _diagnosis_text(diagnosis: Diagnosis) -> list[str]:
         clip_line(diagnosis),
         f"verdict: {diagnosis.verdict}",
         f"confidence: {confidence_words(diagnosis)}",
-        f"  {'#':>2}  {'explanation':44s} {'position RMS':>14s} {'heading RMS':>12s} {'score':>10s}",
+        f"integration: {integration_words(diagnosis)}",
+        f"  {'#':>2}  {'explanation':44s} {'position RMS':>14s} {'heading RMS':>12s} {'score':>10s} {'after fit':>10s}",
     ]
     for k, ranked in enumerate(diagnosis.ranking[:TOP_HYPOTHESES], 1):
         lines.append(
             f"  {k:>2}  {explanation_id(ranked):44s} {ranked.position_rms:11.3f} {unit:2s} "
-            f"{math.degrees(ranked.heading_rms):8.2f} deg {ranked.score:10.3f}"
+            f"{math.degrees(ranked.heading_rms):8.2f} deg {ranked.score:10.3f} {after_fit(ranked):>10s}"
         )
     lines.append(
         f"fitted constants (what the robot code uses; the profile's first), RMS {fit.score_before:.3g} -> "
