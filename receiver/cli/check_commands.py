@@ -35,7 +35,7 @@ from receiver.errors import UsageError
 from receiver.formats.profile_toml import write_profile
 from receiver.formats.recording import read_recording
 from receiver.odometry.columns import Columns
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, missing_profile_hint
 
 
 def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Profile]]:
@@ -53,12 +53,13 @@ def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Pro
         names = list(data.robots)
     if (one or args.write_profile) and len(names) > 1:
         raise UsageError(f"{args.recording} holds several robots ({', '.join(names)}): choose one with --robot")
+    unused = [given for given in cli_profiles if given not in data.robots]
     chosen = []
     for name in names:
         if name not in profiles:
             if len(names) == 1:
-                raise UsageError(f"robot {name!r} has no profile: give one with --profile")
-            warn(f"robot {name!r} has no profile (give one with --profile); skipped")
+                raise UsageError(f"robot {name!r} has no profile: {missing_profile_hint(name, unused)}")
+            warn(f"robot {name!r} has no profile ({missing_profile_hint(name, unused)}); skipped")
             continue
         cols = data.robots[name]
         if getattr(args, "last", None) is not None:
