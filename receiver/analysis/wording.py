@@ -83,6 +83,16 @@ def change_lines(changes: list[str], say_none: bool = True) -> list[str]:
 
 
 def guided_outcome(guided: GuidedResult) -> str:
-    """ "all checks pass", or how many problems and which."""
+    """ "all checks pass", the moves to make again, or how many problems and which."""
     flags = guided.flags
-    return "all checks pass" if guided.passed else f"{len(flags)} problem(s): " + ", ".join(flags)
+    if guided.passed:
+        return "all checks pass"
+    parts = []
+    if guided.refused:
+        parts.append(f"make again: {', '.join(STEP_NAMES[kind] for kind in guided.refused)} (see why above)")
+    if flags or not parts:
+        parts.append(f"{len(flags)} problem(s): " + ", ".join(flags))
+    return "; ".join(parts)
+
+
+STEP_NAMES = {"forward": "the push forward", "left": "the push to the left", "turn": "the turn"}

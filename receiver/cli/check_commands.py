@@ -163,6 +163,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
     else:
         lines = [f"{robot}: {cal.test} test, {len(clip)} samples over {clip.duration_s:.1f} s", *cal.table()]
         lines += change_lines(changes)
+        lines += [f"warning: {warning}" for warning in cal.warnings]
         lines += [f"note: {note}" for note in cal.notes]
         print("\n".join(lines))
     _write(args, profile, cal.corrected)

@@ -114,7 +114,7 @@ def test_bad_input_is_refused_in_one_line() -> None:
         spin_calibration(spin, PRACTICE, 5)
     with pytest.raises(UsageError, match="measured only"):
         spin_calibration(spin, PRACTICE.with_wheels((replace(W[0], reversed=True), W[1], W[2])), 3)
-    with pytest.raises(UsageError, match="profile uses no IMU heading"):
+    with pytest.raises(UsageError, match="needs an \"imu\" value in every message"):
         spin_calibration(spin, PRACTICE, None)
     with pytest.raises(UsageError, match="expected x \\(forward\\) or y \\(left\\)"):
         push_calibration(spin, PRACTICE, 48.0, "z")
