@@ -30,9 +30,9 @@ from receiver.analysis.wording import (
     guided_outcome,
     integration_words,
 )
-from receiver.cli.common import counts_per_message, load_profiles, warn
+from receiver.cli.common import counts_per_message, load_profiles, profile_sources, warn
 from receiver.errors import UsageError
-from receiver.formats.profile_toml import write_profile
+from receiver.formats.profile_writer import write_profile_file
 from receiver.formats.recording import read_recording
 from receiver.odometry.columns import Columns
 from receiver.odometry.robot import Profile, missing_profile_hint
@@ -71,12 +71,16 @@ def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Pro
 
 
 def _write(args: argparse.Namespace, before: Profile, after: Profile) -> None:
+    """Write the corrected profile: into the text of the user's --profile file for this robot
+    (only the changed values change), or as a clean commented file for a recording's profile."""
     if not args.write_profile:
         return
     if after == before:
         warn("nothing to change: the profile is written as it was")
-    write_profile(after, args.write_profile)
-    print(f"podwatch: wrote {args.write_profile}", file=sys.stderr)
+    source = profile_sources(args.profile).get(before.name)
+    write_profile_file(args.write_profile, after, source)
+    kept = f" (changes written into a copy of {source})" if source else " (from the recording's profile)"
+    print(f"podwatch: wrote {args.write_profile}{kept}", file=sys.stderr)
 
 
 def _diagnosis_text(diagnosis: Diagnosis) -> list[str]:
