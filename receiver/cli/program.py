@@ -16,6 +16,7 @@ from receiver import __version__
 from receiver.cli.check_commands import add_check_commands
 from receiver.cli.live_commands import add_live_commands
 from receiver.cli.offline_commands import add_offline_commands
+from receiver.cli.profile_commands import add_profile_commands
 from receiver.errors import PodwatchError
 
 
@@ -30,6 +31,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_offline_commands(sub)
     add_check_commands(sub)
     add_live_commands(sub)
+    add_profile_commands(sub)
     return parser
 
 
