@@ -14,7 +14,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from receiver.analysis.integration_check import DEFAULT_METHOD, IntegrationFinding, find_integration
-from receiver.analysis.judgement import DECIDES, Judgement, Noise, judge
+from receiver.analysis.judgement import DECIDES, Judgement, Noise, judge, same_profile
 from receiver.analysis.mistakes import Hypothesis, hypotheses, profile_changes, verdict
 from receiver.analysis.refine import Fit, refine
 from receiver.analysis.sample_clip import SampleClip, clip_from_columns, last_seconds
@@ -56,6 +56,7 @@ class Ranked:
     score: float  # hypot(position_rms, characteristic length * heading_rms), distance unit
     index: int = 0  # the hypothesis's index in hypotheses(profile)
     fit: Fit | None = None
+    same_after_fit: tuple[Ranked, ...] = ()  # leaders whose fit ends in the same profile
 
     @property
     def score_after(self) -> float:
@@ -172,6 +173,26 @@ def _refine_leaders(
     return leaders + ranking[REFINED_LEADERS:]
 
 
+def _merge_same_answers(
+    ranking: list[Ranked], clip: SampleClip, reported: np.ndarray, method: str, length: float
+) -> list[Ranked]:
+    """The leaders whose fits end in the leader's profile, folded into one answer.
+
+    They are one answer in different words once the constants are fitted
+    (a sideways wheel's small offset flipped and fitted back), so the margin
+    is judged against the next different one; the simplest of them leads.
+    """
+    leaders = [r for r in ranking if r.fit is not None]
+    same = [r for r in leaders if same_profile(r.fit.profile, leaders[0].fit.profile, length)]
+    if len(same) == 1:
+        return ranking
+    lead = min(same, key=lambda r: (r.hypothesis.size, r.score_after))
+    if lead is not leaders[0]:
+        lead = replace(lead, fit=refine(clip, lead.hypothesis, reported[lead.index], method, length))
+    merged = replace(lead, same_after_fit=tuple(r for r in same if r.index != lead.index))
+    return [merged] + [r for r in ranking if r not in same]
+
+
 def diagnose_clip(
     clip: SampleClip, profile: Profile, robot: str | None = None, method: str | None = None
 ) -> Diagnosis:
@@ -201,6 +222,7 @@ def diagnose_clip(
             ranking = _ranking(clip, profile, deltas, reported, integration.method)
             fits = {i: f for i, f in fits.items() if i == ranking[0].index}
     ranking = _refine_leaders(ranking, clip, reported, integration.method, length, fits)
+    ranking = _merge_same_answers(ranking, clip, reported, integration.method, length)
 
     # The clip's motion as the profile sees it (hypothesis 0 is "no mistake").
     seen = np.where(clip.anchor[:, None], 0.0, deltas[0])

@@ -99,16 +99,37 @@ class Judgement:
         }
 
 
+# Two fitted profiles are the same answer when their settings agree and
+# their lengths differ by less than this share of the robot's size (the
+# fit's own "determined" threshold, refine.DETERMINED_REL).
+SAME_PROFILE_REL = 0.01
+
+
+def same_profile(a: Profile, b: Profile, length: float) -> bool:
+    """True when two profiles say the same: equal settings, lengths within SAME_PROFILE_REL."""
+    if a.reported != b.reported or a.imu_mode != b.imu_mode or len(a.wheels) != len(b.wheels):
+        return False
+    for wa, wb in zip(a.wheels, b.wheels):
+        if (wa.name, wa.reversed, wa.angle, wa.counts_per_rev, wa.gear_ratio) != (
+            wb.name, wb.reversed, wb.angle, wb.counts_per_rev, wb.gear_ratio
+        ):
+            return False
+        if max(abs(wa.x - wb.x), abs(wa.y - wb.y)) > SAME_PROFILE_REL * length:
+            return False
+        if abs(wa.diameter - wb.diameter) > SAME_PROFILE_REL * wa.diameter:
+            return False
+    return True
+
+
 def _changes(profile: Profile, ranked: Ranked) -> list[str]:
     after = ranked.fit.profile if ranked.fit is not None else ranked.hypothesis.robot_profile
     return profile_changes(profile, after)
 
 
 def _twins(profile: Profile, a: Ranked, b: Ranked) -> tuple[bool, MoveSeparation]:
-    """(near twins, how far apart on each move): near on every standard move, or the same change once fitted."""
+    """(near twins, how far apart on each move): near on every standard move."""
     moves = separation(profile, a.index, b.index)
-    same = a.fit is not None and b.fit is not None and _changes(profile, a) == _changes(profile, b)
-    return moves.near or same, moves
+    return moves.near, moves
 
 
 def _twin_note(judgement: Judgement, profile: Profile, best: Ranked, decided: bool, noise_level: float) -> str:
@@ -203,6 +224,9 @@ def judge(profile: Profile, ranking: list[Ranked], noise: Noise, amounts: dict[s
     if names and best.equivalent:
         also = "; ".join(verdict(h, profile) for h in best.equivalent)
         notes.append(f"no clip can tell this from: {also}")
+    if names and best.same_after_fit:
+        also = "; ".join(verdict(r.hypothesis, profile) for r in best.same_after_fit)
+        notes.append(f"once their constants are fitted, these end in the same profile: {also}")
     faults = best.hypothesis.faults
     if names and (faults.reversed or faults.swapped or faults.offset_sign):
         notes.append(

@@ -59,8 +59,8 @@ class MoveSeparation:
 
     @property
     def best_move(self) -> str:
-        """The standard move that separates the two most, relative to its size."""
-        return max(self.relative, key=self.relative.get)
+        """The standard move on which the two part furthest (each is a few seconds by hand)."""
+        return max(self.distance, key=self.distance.get)
 
     @property
     def near(self) -> bool:

@@ -65,9 +65,14 @@ def integration_words(diagnosis: Diagnosis) -> str:
 
 
 def explanation_id(ranked: Ranked) -> str:
-    """A hypothesis id with the ones no clip can tell from it, e.g. "swapped:left,right (= ...)"."""
-    equivalent = ranked.equivalent
-    return ranked.hypothesis.id + (f" (= {', '.join(h.id for h in equivalent)})" if equivalent else "")
+    """A hypothesis id with the ones no clip can tell from it, e.g. "swapped:left,right (= ...)",
+    and those that end in the same profile once fitted ("~ ...")."""
+    text = ranked.hypothesis.id
+    if ranked.equivalent:
+        text += f" (= {', '.join(h.id for h in ranked.equivalent)})"
+    if ranked.same_after_fit:
+        text += f" (~ {', '.join(r.hypothesis.id for r in ranked.same_after_fit)})"
+    return text
 
 
 def after_fit(ranked: Ranked) -> str:
