@@ -25,6 +25,10 @@ MAX_PUSH_DRIFT_SHARE = 0.2
 # A turn's centre may lie this far from the robot's centre, as a share of
 # the wheels' distance from it: a turn about one wheel leaves that wheel still.
 MAX_TURN_CENTRE_SHARE = 0.5
+# Wheels across a push that rolled less than this share of it saw neither a
+# turn nor a drift: the others' disagreement is then their scales, which the
+# check's scale lines report, not a crooked push.
+STILL_SHARE = 0.02
 DO_AGAIN = {
     "forward": "push straight forward, without turning (along a straight edge)",
     "left": "push straight to the left, without turning (along a straight edge)",
@@ -98,6 +102,10 @@ def refusal(kind: str, travel: np.ndarray, profile: Profile, length: float, scal
     if _feasible(rows, np.array([max_turn, max_turn, 0.0, 0.0]), scale_tolerance):
         return None
     pushed = abs(body[j])
+    pattern = np.abs(kin.matrix[:, j])
+    across = pattern < 0.1 * pattern.max()
+    if across.any() and (size[across] <= STILL_SHARE * pushed).all():
+        return None
     what = {"forward": "forward", "left": "to the left"}[kind]
     if abs(body[2]) > max_turn:
         return (
