@@ -86,7 +86,7 @@ class Measured:
 @dataclass
 class Calibration:
     """A spin or push test's result for one robot: the measured constants, and the
-    profile with them put in (``corrected``, ready for ``write_profile``).
+    profile with them put in (``corrected``, ready for formats.profile_writer).
     """
 
     robot: str

@@ -7,6 +7,9 @@ raises one-line errors; the layers above assume valid data.
 What the layers above use:
 - protocol: ``decode``, ``decode_keeping_raw``, ``decode_message``, ``encode``, ``Sample``, ``Failure``, ``Reason``, ``PoseMessage``
 - profile_toml: ``load_profile``, ``profile_from_table``, ``profile_to_table``, ``write_profile``
+- profile_writer: ``write_profile_preserving`` (a user's file, only changed values changed),
+  ``profile_text`` (a clean commented file), ``write_profile_file``
+- starter_profiles: ``starter_profile``, ``starter_text``, ``LAYOUTS`` (``podwatch profile new``)
 - recording: ``read_recording``, ``RecordingStream``, ``RecordingData``
 - recording_writer: ``RecordingWriter``
 - block_decoder: ``worker_pool`` (large files on two cores); csv_writer: ``write``
