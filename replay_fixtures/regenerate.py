@@ -39,6 +39,18 @@ FIXTURES = [
         {"near_wrap": True},
     ),
     ("practice-bot-guided.jsonl.gz", "practice-bot.toml", "guided", 15.0, [], {}),
+    # The guided check done carelessly: the forward push curves 30 degrees.
+    ("practice-bot-guided-curving.jsonl.gz", "practice-bot.toml", "guided-curving", 15.0, [], {}),
+    # Nearly symmetric side wheels and swapped encoders: the swap and its
+    # near twin (both side offsets flipped) differ by 0.2 in of geometry.
+    (
+        "practice-bot-rebuilt-swapped.jsonl.gz",
+        "practice-bot-rebuilt.toml",
+        "wander",
+        20.0,
+        ["swapped:left,right"],
+        {},
+    ),
 ]
 
 

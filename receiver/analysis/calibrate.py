@@ -45,12 +45,12 @@ ACROSS_SHARE = 0.02
 MIN_SLIP_STEPS = 20
 # Likely causes of a change too large to be a small correction, in the warning.
 SPIN_CAUSES = (
-    "a wrong count of turns, wheels slipping on the floor, or lengths in the profile in another unit; "
+    "likely a wrong count of turns, wheels slipping on the floor, or lengths in the profile in another unit; "
     "check before writing it"
 )
 PUSH_CAUSES = (
-    "a push distance not in {unit} (the profile's unit), a wrong counts_per_rev or gear_ratio, or the wheel "
-    "slipping or lifting off the floor; check before writing it"
+    "likely a push distance not in {unit} (the profile's unit), a wrong counts_per_rev or gear_ratio, or a "
+    "wheel slipping or lifting off the floor; check before writing it"
 )
 
 
@@ -254,10 +254,7 @@ def spin_calibration(clip: SampleClip, profile: Profile, turns: float | None, ro
         warnings += turn_count_notes(clip, profile, turns, abs(wheels_turn) / (2.0 * math.pi))
     else:
         notes.append("the bound covers the IMU's reading noise at rest, not an error in its own scale")
-    for v in values:
-        warning = large_change_note(v.name, v.before, v.after, SPIN_CAUSES)
-        if warning:
-            warnings.append(warning)
+    warnings += large_change_note([(v.name, v.before, v.after) for v in values], SPIN_CAUSES)
     return Calibration(robot or profile.name, profile, "spin", values, profile.with_wheels(tuple(wheels)), notes, warnings)
 
 
@@ -299,8 +296,5 @@ def push_calibration(clip: SampleClip, profile: Profile, distance: float, axis: 
     notes.append(push_setup_note(distance, unit))
     wheels_moved = abs(float(kin.body_delta(counts * kin.travel_per_count)[0 if axis == "x" else 1]))
     warnings = push_distance_notes(clip, profile, distance, wheels_moved)
-    for v in values:
-        warning = large_change_note(v.name, v.before, v.after, PUSH_CAUSES.format(unit=unit))
-        if warning:
-            warnings.append(warning)
+    warnings += large_change_note([(v.name, v.before, v.after) for v in values], PUSH_CAUSES.format(unit=unit))
     return Calibration(robot or profile.name, profile, "push", values, profile.with_wheels(tuple(wheels)), notes, warnings)

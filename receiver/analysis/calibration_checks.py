@@ -101,11 +101,17 @@ def push_distance_notes(clip: SampleClip, profile: Profile, stated: float, wheel
     ]
 
 
-def large_change_note(name: str, before: float, after: float, causes: str) -> str | None:
-    """A warning for a measured value more than LARGE_CHANGE from the profile's, naming likely causes."""
-    if before == 0 or abs(after / before - 1.0) <= LARGE_CHANGE:
-        return None
-    return f"the {name} came out {100.0 * (after / before - 1.0):+.1f} % from the profile's: {causes}"
+def large_change_note(values: list[tuple[str, float, float]], causes: str) -> list[str]:
+    """One warning for the measured values (name, profile's, measured) more than LARGE_CHANGE
+    from the profile's, naming likely causes; none when every change is small."""
+    large = [
+        f"the {name} by {100.0 * (after / before - 1.0):+.1f} %"
+        for name, before, after in values
+        if before != 0 and abs(after / before - 1.0) > LARGE_CHANGE
+    ]
+    if not large:
+        return []
+    return [f"{', '.join(large)} from the profile's is no small correction: {causes}"]
 
 
 def spin_setup_notes(turns: float, width: float, unit: str) -> list[str]:

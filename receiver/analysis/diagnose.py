@@ -60,8 +60,8 @@ class Ranked:
 
     @property
     def score_after(self) -> float:
-        """The score after refinement for a leader, the plain score for the rest."""
-        return self.fit.score_after if self.fit is not None else self.score
+        """The least a leader leaves with every constant fitted; the plain score for the rest."""
+        return self.fit.score_fitted if self.fit is not None else self.score
 
 
 @dataclass
@@ -132,7 +132,7 @@ class Diagnosis:
                     "position_rms": round(r.position_rms, 6),
                     "heading_rms_deg": round(float(np.degrees(r.heading_rms)), 6),
                     "score": round(r.score, 6),
-                    "score_after_fit": round(r.fit.score_after, 9) if r.fit is not None else None,
+                    "score_after_fit": round(r.score_after, 9) if r.fit is not None else None,
                 }
                 for r in self.ranking[:top]
             ],
@@ -232,7 +232,7 @@ def diagnose_clip(
         "turn": float(np.abs(seen[:, 2]).sum()),
     }
     best = ranking[0]
-    noise = Noise(best.fit.score_after, resolution, len(clip), best.fit.free_parameters)
+    noise = Noise(best.score_after, resolution, len(clip), best.fit.free_parameters)
     judgement = judge(profile, ranking, noise, amounts)
 
     corrected = best.fit.profile if judgement.names_explanation else profile

@@ -78,10 +78,10 @@ def find_integration(
     first = refine(clip, hypothesis, reported, DEFAULT_METHOD, length)
     # The other methods only need their residuals to a few digits, to compare.
     fits = {m: first if m == DEFAULT_METHOD else refine(clip, hypothesis, reported, m, length, loose) for m in INTEGRATIONS}
-    best = min(INTEGRATIONS, key=lambda m: (fits[m].score_after, m != DEFAULT_METHOD))
+    best = min(INTEGRATIONS, key=lambda m: (fits[m].score_fitted, m != DEFAULT_METHOD))
     if best != DEFAULT_METHOD:
         fits[best] = refine(clip, hypothesis, reported, best, length)
-    residuals = {m: fit.score_after for m, fit in fits.items()}
+    residuals = {m: fit.score_fitted for m, fit in fits.items()}
     noise = float(np.hypot(residuals[best], noise_floor))
     ruled_out = [m for m in INTEGRATIONS if residuals[m] - residuals[best] >= decides * noise]
     source = "clip" if len(ruled_out) == len(INTEGRATIONS) - 1 else "assumed"

@@ -138,8 +138,8 @@ def _twin_note(judgement: Judgement, profile: Profile, best: Ranked, decided: bo
     if decided:
         gap = twin.score_after - best.score_after
         return (
-            f"near twin of the best: {verdict(twin.hypothesis, profile)} predicts almost the same motion "
-            f"({judgement.twin_reason}); this clip tells them apart: it leaves {gap:.3g} {unit} more, "
+            f"near twin: {twin.hypothesis.id} predicts almost the same motion on this robot "
+            f"({judgement.twin_reason}); this clip tells them apart: it leaves {gap:.3g} {unit} more after the fit, "
             f"{gap / noise_level:.3g} times the clip's noise"
         )
     if judgement.shared_change:

@@ -94,10 +94,11 @@ class Fit:
 
     values: list[Fitted]
     score_before: float
-    score_after: float
+    score_after: float  # with the significant fitted values in (``profile``)
     profile: Profile  # the hypothesis's profile with the significant fitted values in it
     method: str = "arc"  # the integration the fit compared with
     residuals: int = 0  # how many residuals the RMS is over (3 per sample)
+    score_fitted: float = math.nan  # with every fitted value in: the least this hypothesis can leave
 
     @property
     def free_parameters(self) -> int:
@@ -253,4 +254,4 @@ def refine(
     if before - after < MEANINGFUL_COUNTS * resolution:
         values = [replace(v, meaningful=False) for v in values]
         applied, after = model.start, before
-    return Fit(values, before, after, model.profile(applied), method, m)
+    return Fit(values, before, after, model.profile(applied), method, m, min(rms(result.fun), before))

@@ -37,9 +37,19 @@ def confidence_words(diagnosis: Diagnosis) -> str:
     return (
         f"{diagnosis.confidence} (margin {diagnosis.margin:.3g} {unit} between the first and second "
         f"explanation after the fit, {_times(diagnosis.margin_over_noise)} the clip's noise of {noise.level:.2g} {unit}: "
-        f"the best explanation's residual {noise.residual:.2g} {unit}, encoder resolution "
+        f"the best explanation's residual {small(noise.residual)} {unit}, encoder resolution "
         f"{noise.resolution:.2g} {unit}, {noise.samples} samples)"
     )
+
+
+# Residuals and spreads below this (distance unit) are the arithmetic's
+# rounding, not the robot's: they read as 0 and come out the same on any CPU.
+ROUNDING_FLOOR = 1e-9
+
+
+def small(value: float, digits: int = 2) -> str:
+    """A residual or spread to ``digits`` significant digits; "0" below ROUNDING_FLOOR."""
+    return "0" if abs(value) < ROUNDING_FLOOR else f"{value:.{digits}g}"
 
 
 def _times(ratio: float) -> str:
@@ -54,7 +64,7 @@ def integration_words(diagnosis: Diagnosis) -> str:
         return f"{found.method}, as the profile says ([reported] integration)"
     if found.source == "given":
         return f"{found.method}, as given"
-    left = ", ".join(f"{m} {found.residuals[m]:.2g}" for m in sorted(found.residuals, key=found.residuals.get))
+    left = ", ".join(f"{m} {small(found.residuals[m])}" for m in sorted(found.residuals, key=found.residuals.get))
     if found.source == "clip":
         return f"{found.method}, found from the clip (RMS after the fit: {left} {unit})"
     tied = " or ".join(found.tied)
@@ -77,7 +87,7 @@ def explanation_id(ranked: Ranked) -> str:
 
 def after_fit(ranked: Ranked) -> str:
     """A leader's score after its fit (3 decimals), or "-" for an explanation not refined."""
-    return f"{ranked.fit.score_after:.3f}" if ranked.fit is not None else "-"
+    return f"{ranked.score_after:.3f}" if ranked.fit is not None else "-"
 
 
 def change_lines(changes: list[str], say_none: bool = True) -> list[str]:

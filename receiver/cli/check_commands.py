@@ -29,6 +29,7 @@ from receiver.analysis.wording import (
     explanation_id,
     guided_outcome,
     integration_words,
+    small,
 )
 from receiver.cli.common import counts_per_message, load_profiles, profile_sources, warn
 from receiver.errors import UsageError
@@ -99,11 +100,11 @@ def _diagnosis_text(diagnosis: Diagnosis) -> list[str]:
             f"{math.degrees(ranked.heading_rms):8.2f} deg {ranked.score:10.3f} {after_fit(ranked):>10s}"
         )
     lines.append(
-        f"fitted constants (what the robot code uses; the profile's first), RMS {fit.score_before:.3g} -> "
-        f"{fit.score_after:.3g} {unit}:"
+        f"fitted constants (what the robot code uses; the profile's first), RMS {small(fit.score_before, 3)} -> "
+        f"{small(fit.score_after, 3)} {unit}:"
     )
     for fitted in fit.values:
-        how = f"+-{fitted.std:.2g}" if fitted.determined else "not determined by this clip"
+        how = f"+-{small(fitted.std)}" if fitted.determined else "not determined by this clip"
         applied = "  (changed)" if fitted.significant else ""
         lines.append(f"  {fitted.name:30s} {fitted.before:10.4f} -> {fitted.fitted:10.4f} {fitted.unit} {how}{applied}")
     lines += change_lines(diagnosis.changes)

@@ -51,7 +51,7 @@ def test_a_swap_on_a_nearly_symmetric_robot_is_decided_and_its_twin_named() -> N
     words = confidence_words(d)
     assert "times the clip's noise" in words and "encoder resolution 0.00053 in" in words
     assert d.judgement.twin.hypothesis.id == "offset-sign:left+offset-sign:right"
-    note = next(n for n in d.notes if n.startswith("near twin of the best"))
+    note = next(n for n in d.notes if n.startswith("near twin: offset-sign:left+offset-sign:right predicts"))
     assert "the left and right wheels sit 6.6 and 6.4 in from centre: these two differ only by that 0.2 in" in note
     assert d.changes == ["ticks[0]: the left wheel -> the right wheel", "ticks[1]: the right wheel -> the left wheel"]
 
