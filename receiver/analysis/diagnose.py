@@ -19,6 +19,7 @@ from receiver.analysis.mistakes import Hypothesis, hypotheses, profile_changes, 
 from receiver.analysis.refine import Fit, refine
 from receiver.analysis.sample_clip import SampleClip, clip_from_columns, last_seconds
 from receiver.analysis.scoring import (
+    Ranked,
     body_deltas,
     characteristic_length,
     disagreement,
@@ -40,28 +41,6 @@ RUNNER_UP_TOLERANCE = 1e-5
 CONFIDENCE_LEVELS = ("high", "low", "near twins", "undecided", "not enough motion")
 # The answers that name no explanation: the page asks again as the robot moves.
 UNDECIDED = ("undecided", "not enough motion")
-
-
-@dataclass(frozen=True)
-class Ranked:
-    """One explanation with its score; ``equivalent`` ones predict exactly the same reports.
-
-    ``fit`` is its refinement, for the leaders only (None for the rest).
-    """
-
-    hypothesis: Hypothesis
-    equivalent: tuple[Hypothesis, ...]
-    position_rms: float  # profile's distance unit
-    heading_rms: float  # radians
-    score: float  # hypot(position_rms, characteristic length * heading_rms), distance unit
-    index: int = 0  # the hypothesis's index in hypotheses(profile)
-    fit: Fit | None = None
-    same_after_fit: tuple[Ranked, ...] = ()  # leaders whose fit ends in the same profile
-
-    @property
-    def score_after(self) -> float:
-        """The least a leader leaves with every constant fitted; the plain score for the rest."""
-        return self.fit.score_fitted if self.fit is not None else self.score
 
 
 @dataclass

@@ -12,14 +12,10 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
-
 from receiver.analysis.mistakes import profile_changes, verdict
+from receiver.analysis.scoring import Ranked
 from receiver.analysis.twins import MOVE_WORDS, MoveSeparation, clip_lacks, how_they_differ, separation
 from receiver.odometry.robot import Profile, inches
-
-if TYPE_CHECKING:
-    from receiver.analysis.diagnose import Ranked
 
 # A margin of this many times the clip's noise decides ("high")...
 DECIDES = 10.0

@@ -2,17 +2,20 @@
 
 Owns the batched recompute behind diagnosis (one matrix product for the body
 displacements of all hypotheses, one ``integrate`` call for all their poses),
-the RMS disagreement with the reported pose, and the groups of hypotheses
-that no clip can tell apart. Pure numpy: no I/O, no state between calls.
+the RMS disagreement with the reported pose, the groups of hypotheses that
+no clip can tell apart, and ``Ranked``, one explanation with its scores.
+Pure numpy: no I/O, no state between calls.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
 
 from receiver.analysis.mistakes import Hypothesis, hypotheses
+from receiver.analysis.refine import Fit
 from receiver.odometry.conventions import imu_heading_change, rep103_to_reported, reported_to_rep103
 from receiver.odometry.integrate import integrate, wrap_angle
 from receiver.odometry.kinematics import Kinematics
@@ -22,6 +25,28 @@ from receiver.odometry.robot import Profile
 # the random probe are the same explanation in different words.
 _SAME_PREDICTION_RTOL = 1e-9
 _PROBE_STEPS = 48
+
+
+@dataclass(frozen=True)
+class Ranked:
+    """One explanation with its score; ``equivalent`` ones predict exactly the same reports.
+
+    ``fit`` is its refinement, for the leaders only (None for the rest).
+    """
+
+    hypothesis: Hypothesis
+    equivalent: tuple[Hypothesis, ...]
+    position_rms: float  # profile's distance unit
+    heading_rms: float  # radians
+    score: float  # hypot(position_rms, characteristic length * heading_rms), distance unit
+    index: int = 0  # the hypothesis's index in hypotheses(profile)
+    fit: Fit | None = None
+    same_after_fit: tuple[Ranked, ...] = ()  # leaders whose fit ends in the same profile
+
+    @property
+    def score_after(self) -> float:
+        """The least a leader leaves with every constant fitted; the plain score for the rest."""
+        return self.fit.score_fitted if self.fit is not None else self.score
 
 
 def characteristic_length(profile: Profile) -> float:
