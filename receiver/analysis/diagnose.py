@@ -37,7 +37,7 @@ __all__ = ["Diagnosis", "Ranked", "diagnose", "diagnose_clip", "diagnose_recent"
 REFINED_LEADERS = 3
 # The runners-up's fits stop at this relative change: their scores are
 # compared with the best one's, to a few digits.
-RUNNER_UP_TOLERANCE = 1e-5
+RUNNER_UP_TOLERANCE = 1e-3
 CONFIDENCE_LEVELS = ("high", "low", "near twins", "undecided", "not enough motion")
 # The answers that name no explanation: the page asks again as the robot moves.
 UNDECIDED = ("undecided", "not enough motion")

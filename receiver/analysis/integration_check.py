@@ -65,7 +65,7 @@ def find_integration(
     length: float,
     noise_floor: float,
     decides: float,
-    loose: float = 1e-5,
+    loose: float = 1e-3,
 ) -> IntegrationFinding:
     """Refine ``hypothesis`` under each method; the one leaving the least is the robot code's.
 

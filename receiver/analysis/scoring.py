@@ -54,13 +54,15 @@ def characteristic_length(profile: Profile) -> float:
     return float(np.sqrt(np.mean([w.x**2 + w.y**2 for w in profile.wheels])))
 
 
+@lru_cache(maxsize=64)
 def _solve_stack(hyps: tuple[Hypothesis, ...], with_imu: bool) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
     """Per hypothesis, the linear maps of Kinematics.body_delta: counts -> deltas.
 
     Returns W (H, n, 3) for the wheels alone and, with the IMU, W_imu
     (H, n, 3) and C (H, 3) for deltas = counts @ W_imu + dth_imu * C.
     body_delta is linear in its inputs, so feeding it unit counts reads the
-    maps off without reaching into the solver.
+    maps off without reaching into the solver. Cached: a live page asks for
+    the same profile's maps at every run.
     """
     n = len(hyps[0].robot_profile.wheels)
     w, w_imu, c = [], [], []
