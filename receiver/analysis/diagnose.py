@@ -59,7 +59,7 @@ class Diagnosis:
     travel: float  # distance driven in the clip as the profile sees it, distance unit
     rotation_rad: float  # total turning, radians (unsigned)
     ranking: list[Ranked]
-    margin: float  # second score minus first, after refinement, distance unit
+    margin: float  # what the second leaves beyond the first, after refinement (judgement.beyond), distance unit
     confidence: str  # one of CONFIDENCE_LEVELS
     verdict: str
     fit: Fit
@@ -228,7 +228,7 @@ def _diagnose_clip(clip: SampleClip, profile: Profile, robot: str | None, method
         "turn": float(np.abs(seen[:, 2]).sum()),
     }
     best = ranking[0]
-    noise = Noise(best.score_after, resolution, len(clip), best.fit.free_parameters)
+    noise = Noise.of(best.fit, resolution, len(clip))
     judgement = judge(profile, ranking, noise, amounts)
 
     corrected = best.fit.profile if judgement.names_explanation else profile

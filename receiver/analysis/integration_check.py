@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from receiver.analysis.mistakes import Hypothesis
+from receiver.analysis.judgement import Noise, beyond
 from receiver.analysis.refine import Fit, refine
 from receiver.analysis.sample_clip import SampleClip
 from receiver.odometry.robot import INTEGRATIONS
@@ -70,8 +71,8 @@ def find_integration(
     """Refine ``hypothesis`` under each method; the one leaving the least is the robot code's.
 
     A method is ruled out when it leaves at least ``decides`` times the
-    clip's noise (the least residual, at least ``noise_floor``) more than
-    the best one. When all are ruled out but the best, the source is
+    clip's noise (judgement.Noise of the best fit, with ``noise_floor`` as
+    the resolution) beyond the best one. When all are ruled out but the best, the source is
     "clip"; otherwise "assumed" (the best of those left). The methods that
     do not lead are fitted to the relative tolerance ``loose`` only.
     """
@@ -82,7 +83,7 @@ def find_integration(
     if best != DEFAULT_METHOD:
         fits[best] = refine(clip, hypothesis, reported, best, length)
     residuals = {m: fit.score_fitted for m, fit in fits.items()}
-    noise = float(np.hypot(residuals[best], noise_floor))
-    ruled_out = [m for m in INTEGRATIONS if residuals[m] - residuals[best] >= decides * noise]
+    noise = Noise.of(fits[best], noise_floor, len(clip)).level
+    ruled_out = [m for m in INTEGRATIONS if beyond(residuals[m], residuals[best]) >= decides * noise]
     source = "clip" if len(ruled_out) == len(INTEGRATIONS) - 1 else "assumed"
     return IntegrationFinding(best, source, residuals, ruled_out, fits)

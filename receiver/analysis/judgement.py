@@ -13,6 +13,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 from receiver.analysis.mistakes import profile_changes, verdict
+from receiver.analysis.refine import Fit
 from receiver.analysis.scoring import Ranked
 from receiver.analysis.twins import MOVE_WORDS, MoveSeparation, clip_lacks, how_they_differ, separation
 from receiver.odometry.robot import Profile, inches
@@ -40,19 +41,30 @@ _INSTRUCTIONS = {
 class Noise:
     """The noise a clip shows, distance unit: the best explanation's RMS residual after
     its fit, one encoder count's travel, and the samples (with the fitted constants) behind them.
+
+    ``independent`` is about how many of the samples are independent
+    (refine.lag_one_correlation): a margin over many independent samples is
+    surer than the same margin over a slow drift.
     """
 
     residual: float
     resolution: float
     samples: int
     parameters: int = 0
+    independent: float = 1.0
+
+    @classmethod
+    def of(cls, fit: Fit, resolution: float, samples: int) -> Noise:
+        """The noise a fit leaves on a clip of ``samples``."""
+        return cls(fit.score_fitted, resolution, samples, fit.free_parameters, fit.independent_samples)
 
     @property
     def level(self) -> float:
-        """The residual (corrected for the constants fitted to it) and the resolution, in quadrature."""
+        """What a margin is judged against: the residual (corrected for the constants fitted to
+        it) over the root of the independent samples, and the resolution, in quadrature."""
         m = 3 * self.samples
         unbiased = self.residual * math.sqrt(m / max(m - self.parameters, 1))
-        return math.hypot(unbiased, self.resolution)
+        return math.hypot(unbiased / math.sqrt(max(self.independent, 1.0)), self.resolution)
 
     def to_json(self) -> dict:
         """The noise and what it is made of, as JSON."""
@@ -61,7 +73,14 @@ class Noise:
             "residual": float(f"{self.residual:.4g}"),
             "resolution": float(f"{self.resolution:.4g}"),
             "samples": self.samples,
+            "independent_samples": round(self.independent, 1),
         }
+
+
+def beyond(score: float, best: float) -> float:
+    """How much more an explanation leaves than the best, beyond what both leave:
+    sqrt(score^2 - best^2) (0 when it leaves no more)."""
+    return math.sqrt(max(score * score - best * best, 0.0))
 
 
 @dataclass
@@ -132,7 +151,7 @@ def _twin_note(judgement: Judgement, profile: Profile, best: Ranked, decided: bo
     twin, moves = judgement.twin, judgement.twin_moves
     unit = profile.distance_unit
     if decided:
-        gap = twin.score_after - best.score_after
+        gap = beyond(twin.score_after, best.score_after)
         return (
             f"near twin: {twin.hypothesis.id} predicts almost the same motion on this robot "
             f"({judgement.twin_reason}); this clip tells them apart: it leaves {gap:.3g} {unit} more after the fit, "
@@ -171,7 +190,7 @@ def judge(profile: Profile, ranking: list[Ranked], noise: Noise, amounts: dict[s
     unit = profile.distance_unit
     best = ranking[0]
     level = noise.level
-    margin = ranking[1].score_after - best.score_after if len(ranking) > 1 else math.inf
+    margin = beyond(ranking[1].score_after, best.score_after) if len(ranking) > 1 else math.inf
     ratio = margin / level if level > 0 else math.inf
     twin, moves = None, None
     for r in ranking[1 : 1 + TWIN_CANDIDATES]:
@@ -183,8 +202,7 @@ def judge(profile: Profile, ranking: list[Ranked], noise: Noise, amounts: dict[s
     if ratio >= SUGGESTS:
         confidence = "high" if ratio >= DECIDES else "low"
     else:
-        band = best.score_after + SUGGESTS * level
-        contenders = [r for r in ranking[1:] if r.score_after < band]
+        contenders = [r for r in ranking[1:] if beyond(r.score_after, best.score_after) < SUGGESTS * level]
         others = [(r, how) for r, (near, how) in ((r, _twins(profile, best, r)) for r in contenders) if not near]
         if not others:
             confidence = "near twins"

@@ -99,6 +99,13 @@ class Fit:
     method: str = "arc"  # the integration the fit compared with
     residuals: int = 0  # how many residuals the RMS is over (3 per sample)
     score_fitted: float = math.nan  # with every fitted value in: the least this hypothesis can leave
+    correlation: float = 0.0  # the residuals' lag-one correlation (see lag_one_correlation)
+
+    @property
+    def independent_samples(self) -> float:
+        """About how many independent samples the residuals hold (at least one)."""
+        samples = self.residuals / 3.0
+        return max(samples * (1.0 - self.correlation) / (1.0 + self.correlation), 1.0)
 
     @property
     def free_parameters(self) -> int:
@@ -181,13 +188,13 @@ def _std_errors(jac: np.ndarray, residual_variance: float) -> np.ndarray:
     return np.where(touches_free, np.inf, np.sqrt(var))
 
 
-def _correlation_inflation(residuals: np.ndarray) -> float:
-    """How much a standard error from these residuals (3, N) understates the truth.
+def lag_one_correlation(residuals: np.ndarray) -> float:
+    """The residuals' (3, N) mean lag-one correlation, in [0, 1): how much each follows the one before.
 
     Residuals of an integrated pose are far from independent: one packet's
     rounding stays in every pose after it. With a lag-one correlation rho,
     N such residuals hold about N (1 - rho) / (1 + rho) independent ones
-    (the first-order autoregressive model), so the variance of a fitted
+    (the first-order autoregressive model), and the variance of a fitted
     value grows by (1 + rho) / (1 - rho).
     """
     rho = []
@@ -196,8 +203,7 @@ def _correlation_inflation(residuals: np.ndarray) -> float:
         scale = math.sqrt(float(a @ a) * float(b @ b))
         if scale > 0.0:
             rho.append(float(a @ b) / scale)
-    r = min(max(float(np.mean(rho)) if rho else 0.0, 0.0), 1.0 - 1e-6)
-    return (1.0 + r) / (1.0 - r)
+    return min(max(float(np.mean(rho)) if rho else 0.0, 0.0), 1.0 - 1e-6)
 
 
 def refine(
@@ -239,7 +245,8 @@ def refine(
     )
     fitted = model.values(result.x)
     m, p = len(result.fun), len(model.start)
-    variance = float(result.fun @ result.fun) / max(m - p, 1) * _correlation_inflation(result.fun.reshape(3, -1))
+    rho = lag_one_correlation(result.fun.reshape(3, -1))
+    variance = float(result.fun @ result.fun) / max(m - p, 1) * (1.0 + rho) / (1.0 - rho)
     std_u = _std_errors(result.jac, variance)
     known = np.isfinite(std_u)
     std = np.where(known, np.where(known, std_u, 0.0) * model.slopes(result.x), np.inf)
@@ -254,4 +261,4 @@ def refine(
     if before - after < MEANINGFUL_COUNTS * resolution:
         values = [replace(v, meaningful=False) for v in values]
         applied, after = model.start, before
-    return Fit(values, before, after, model.profile(applied), method, m, min(rms(result.fun), before))
+    return Fit(values, before, after, model.profile(applied), method, m, min(rms(result.fun), before), rho)

@@ -34,11 +34,17 @@ def confidence_words(diagnosis: Diagnosis) -> str:
     noise = diagnosis.noise
     if not math.isfinite(diagnosis.margin):
         return f"{diagnosis.confidence} (only one explanation fits this profile)"
+    if noise.residual < ROUNDING_FLOOR:
+        residual = f"the best explanation's residual 0 {unit}, encoder resolution {noise.resolution:.2g} {unit}, {noise.samples} samples"
+    else:
+        residual = (
+            f"the best explanation's residual {noise.residual:.2g} {unit} over about {noise.independent:.0f} "
+            f"independent samples of {noise.samples}, encoder resolution {noise.resolution:.2g} {unit}"
+        )
     return (
         f"{diagnosis.confidence} (margin {diagnosis.margin:.3g} {unit} between the first and second "
-        f"explanation after the fit, {_times(diagnosis.margin_over_noise)} the clip's noise of {noise.level:.2g} {unit}: "
-        f"the best explanation's residual {small(noise.residual)} {unit}, encoder resolution "
-        f"{noise.resolution:.2g} {unit}, {noise.samples} samples)"
+        f"explanation after the fit, {_times(diagnosis.margin_over_noise)} the clip's noise of "
+        f"{noise.level:.2g} {unit}: {residual})"
     )
 
 

@@ -57,14 +57,18 @@ def test_a_swap_on_a_nearly_symmetric_robot_is_decided_and_its_twin_named() -> N
 
 
 def test_the_same_difference_on_a_noisy_clip_is_named_as_near_twins_not_decided() -> None:
-    # The robot sends its pose rounded to 0.5 in (its own logging): a 0.3 in
-    # difference between the twins no longer decides anything.
+    # The robot's own pose wanders by 0.3 in RMS on top of what its code
+    # computes (a slow random walk: few independent samples): the twins'
+    # difference no longer decides anything.
     cols = _columns(NEARLY_SYMMETRIC, "wander", ["swapped:left,right"])
+    drift = np.cumsum(np.random.default_rng(2).normal(size=(len(cols), 2)), axis=0)
+    drift = (drift - drift.mean(axis=0)) * 0.3 / (drift - drift.mean(axis=0)).std()
     pose = cols.pose.copy()
-    pose[:, :2] = np.round(pose[:, :2] * 2.0) / 2.0
+    pose[:, :2] += drift
     noisy = Columns(cols.seq, cols.t, cols.ticks, pose, cols.imu, cols.loop, cols.reset)
     d = diagnose(noisy, NEARLY_SYMMETRIC)
-    assert d.confidence == "near twins"
+    assert d.confidence == "near twins" and d.noise.independent < 10
+    assert "over about 2 independent samples of" in confidence_words(d)
     assert _ids(d.best) | _ids(d.judgement.twin) >= {"swapped:left,right", "offset-sign:left+offset-sign:right"}
     assert d.verdict.startswith("either the robot code ") and ", or its near twin: " in d.verdict
     note = next(n for n in d.notes if n.startswith("near twins:"))
@@ -108,6 +112,17 @@ def test_a_clip_without_turning_says_not_enough_motion_and_what_to_add() -> None
     assert "they differ only when the robot drives forward or turns" in note
     assert "turned 0 deg" in note and "turn at least a quarter turn" in note
     assert d.corrected == NEARLY_SYMMETRIC
+
+
+def test_white_noise_over_many_samples_still_decides() -> None:
+    # The robot's reports jitter by 0.5 in, independently from sample to
+    # sample: over 300 samples a 1 in difference is far beyond chance.
+    cols = _columns(PRACTICE, "figure-eight", ["reversed:right"], seconds=6.0, rate=50.0, seed=3)
+    pose = cols.pose.copy()
+    pose[:, :2] += np.random.default_rng(1).normal(0.0, 0.5, pose[:, :2].shape)
+    d = diagnose(Columns(cols.seq, cols.t, cols.ticks, pose, cols.imu, cols.loop, cols.reset), PRACTICE)
+    assert d.best.hypothesis.id == "reversed:right" and d.confidence == "high"
+    assert d.noise.independent > 100 and d.noise.level < 0.1 * d.noise.residual
 
 
 def test_a_robot_at_rest_is_not_enough_motion() -> None:

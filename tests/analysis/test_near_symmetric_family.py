@@ -57,4 +57,4 @@ def test_each_mistake_is_named_and_the_written_profile_reproduces_the_reports(ro
     again = profile_from_table(tomllib.loads(written))
     result = Tracker(again, d.integration.method).feed(cols)
     rms = float(np.sqrt(np.nanmean(result.position_error**2)))
-    assert rms <= 3.0 * d.noise.level + 1e-3, (rms, d.noise)
+    assert rms <= 3.0 * d.noise.residual + 1e-3, (rms, d.noise)
