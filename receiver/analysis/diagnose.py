@@ -16,7 +16,7 @@ import numpy as np
 
 from receiver.analysis.integration_check import DEFAULT_METHOD, IntegrationFinding, find_integration
 from receiver.analysis.judgement import DECIDES, Judgement, Noise, judge, same_profile
-from receiver.analysis.mistakes import Hypothesis, hypotheses, profile_changes, verdict
+from receiver.analysis.mistakes import hypotheses, profile_changes, verdict
 from receiver.analysis.refine import Fit, refine
 from receiver.analysis.sample_clip import SampleClip, clip_from_columns, last_seconds
 from receiver.analysis.scoring import (
