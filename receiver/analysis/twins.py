@@ -149,40 +149,47 @@ def _length(value: float) -> str:
     return f"{value:.3g}"
 
 
+def _offset_sentence(profile: Profile, offsets: list[tuple[float, float]]) -> str:
+    """How far apart two explanations' wheel offsets are, in the profile's own numbers."""
+    unit = profile.distance_unit
+    gap = max(abs(va - vb) for va, vb in offsets)
+    magnitudes = sorted({round(abs(v), 9) for pair in offsets for v in pair}, reverse=True)
+    owners = [next((w.name for w in profile.wheels if round(abs(_lever(w)[1]), 9) == m), None) for m in magnitudes]
+    if len(magnitudes) == 2 and None not in owners and owners[0] != owners[1]:
+        return (
+            f"the {owners[0]} and {owners[1]} wheels sit {_length(magnitudes[0])} and {_length(magnitudes[1])} "
+            f"{unit} from centre: these two differ only by that {_length(magnitudes[0] - magnitudes[1])} {unit}"
+        )
+    if len(magnitudes) == 1 and owners[0] is not None:
+        return (
+            f"the {owners[0]} wheel sits {_length(magnitudes[0])} {unit} from centre: "
+            f"these two differ only by its sign, {_length(gap)} {unit}"
+        )
+    return f"their wheel offsets differ by at most {_length(gap)} {unit}"
+
+
 def how_they_differ(profile: Profile, a: Hypothesis, b: Hypothesis) -> str:
     """Why two explanations predict almost the same motion, in the robot's own numbers.
 
     When they differ only in wheel offsets, e.g. "the left and right wheels
     sit 6.6 and 6.4 in from centre: these two differ only by that 0.2 in".
     """
-    unit = profile.distance_unit
     ra, rb = a.robot_profile, b.robot_profile
     conventions = [k for k in CONVENTION_KEYS if getattr(ra.reported, k) != getattr(rb.reported, k)]
     offsets, others = [], []
-    for wa, wb in zip(ra.wheels, rb.wheels):
+    for slot, (wa, wb) in enumerate(zip(ra.wheels, rb.wheels)):
         for key in ("x", "y"):
             if getattr(wa, key) != getattr(wb, key):
                 offsets.append((getattr(wa, key), getattr(wb, key)))
         if wa.angle != wb.angle or wa.travel_per_count != wb.travel_per_count:
-            others.append(f"how the {wa.name if wa.name == wb.name else 'same'} encoder's counts are read")
-    if offsets and not conventions and not others:
-        gap = max(abs(va - vb) for va, vb in offsets)
-        magnitudes = sorted({round(abs(v), 9) for pair in offsets for v in pair}, reverse=True)
-        owners = []
-        for m in magnitudes:
-            owner = next((w.name for w in profile.wheels if round(abs(_lever(w)[1]), 9) == m), None)
-            owners.append(owner)
-        if len(magnitudes) == 2 and None not in owners and owners[0] != owners[1]:
-            return (
-                f"the {owners[0]} and {owners[1]} wheels sit {_length(magnitudes[0])} and {_length(magnitudes[1])} "
-                f"{unit} from centre: these two differ only by that {_length(gap)} {unit}"
-            )
-        if len(magnitudes) == 1 and owners[0] is not None:
-            return (
-                f"the {owners[0]} wheel sits {_length(magnitudes[0])} {unit} from centre: "
-                f"these two differ only by its sign, {_length(gap)} {unit}"
-            )
-        return f"these two differ only in wheel offsets, by at most {_length(gap)} {unit}"
+            others.append(f"the direction of ticks[{slot}]")
+    sentence = _offset_sentence(profile, offsets) if offsets else ""
+    if sentence and not conventions and not others:
+        return sentence
+    if set(conventions) == {"y_axis", "heading_positive"}:
+        # REP 103 reflected: +y and the sense of turning both reversed.
+        mirror = "one is the mirror image of the other (+y and the turning sense reversed)"
+        return f"{mirror}, and {sentence}" if sentence else mirror
     what = [f"reported.{k}" for k in conventions] + sorted(set(others))
     if offsets:
         what.append("wheel offsets")

@@ -128,3 +128,19 @@ def test_white_noise_over_many_samples_still_decides() -> None:
 def test_a_robot_at_rest_is_not_enough_motion() -> None:
     d = diagnose(_columns(PRACTICE, "guided", ["reversed:right"], seconds=0.8), PRACTICE)
     assert d.confidence == "not enough motion" and d.travel < 1e-9
+
+
+def test_a_mirror_image_twin_says_so() -> None:
+    # REP 103 reflected (y and turning reversed) is a swap plus a reversed
+    # sideways wheel on a mirror-symmetric robot; on a nearly symmetric one
+    # it is a near twin, apart by the side wheels' 0.2 in.
+    hyps = hypotheses(NEARLY_SYMMETRIC)
+    index = {h.id: i for i, h in enumerate(hyps)}
+    a, b = index["reversed:back+swapped:left,right"], index["heading-direction+y-axis"]
+    assert separation(NEARLY_SYMMETRIC, a, b).near
+    from receiver.analysis.twins import how_they_differ
+
+    assert how_they_differ(NEARLY_SYMMETRIC, hyps[a], hyps[b]) == (
+        "one is the mirror image of the other (+y and the turning sense reversed), and the left and right "
+        "wheels sit 6.6 and 6.4 in from centre: these two differ only by that 0.2 in"
+    )
