@@ -27,6 +27,8 @@ from receiver.analysis.sample_clip import clip_from_columns
 from receiver.errors import PodwatchError
 from receiver.formats.profile_toml import profile_to_table
 from receiver.live.raw_history import DEFAULT_RAW_WINDOW_S
+from receiver.live.session import unheard_profiles
+from receiver.odometry.robot import missing_profile_hint
 
 CLIP_CHOICES_S = (5, 10, 20, 30, 60)
 TICK_MS = 500  # how often the watch looks at the disagreement, and a running guided check at the moves
@@ -89,7 +91,9 @@ def run_diagnosis(
         return diagnosis_message("No robot heard yet: nothing to diagnose."), None, None
     profile = shown.profile(robot)
     if profile is None:
-        return diagnosis_message(f"{robot} has no profile (give one with --profile): nothing to diagnose."), None, None
+        unheard = unheard_profiles(shown.source.hub.snapshot(shown.source.now(), loop_stats=False))
+        hint = missing_profile_hint(robot or "", unheard)
+        return diagnosis_message(f"{robot} has no profile ({hint}): nothing to diagnose."), None, None
     # Twice the clip by receive time, not the whole raw history (600 s of a 1 kHz robot is 54 MB):
     # diagnose_recent cuts the last seconds by the robot's clock.
     latest = shown.latest_rx(robot)

@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 from collections import Counter
 from dataclasses import dataclass, field
+from typing import Sequence
 
 import numpy as np
 
@@ -21,9 +22,9 @@ from dashboard import figures, readouts
 from dashboard.downsample import pick_rows
 from dashboard.settings import Settings
 from dashboard.tabs import TabView
-from receiver.live.session import LinkState, RobotSnapshot
+from receiver.live.session import LinkState, RobotSnapshot, unheard_profiles
 from receiver.odometry.counts import ANCHORS
-from receiver.odometry.robot import METRES_PER_UNIT
+from receiver.odometry.robot import METRES_PER_UNIT, missing_profile_hint
 
 NO_PROFILE_UNIT = "robot units"
 _ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
@@ -64,8 +65,9 @@ def _unit(shown: TabView, robot: str | None) -> tuple[str, float | None]:
     return profile.distance_unit, METRES_PER_UNIT[profile.distance_unit]
 
 
-def status_line(snap: RobotSnapshot | None, now: float, source_label: str) -> str:
-    """One line on the selected robot's link, e.g. "practice-bot: no data for 4 s"."""
+def status_line(snap: RobotSnapshot | None, now: float, source_label: str, unheard: Sequence[str] = ()) -> str:
+    """One line on the selected robot's link, e.g. "practice-bot: no data for 4 s"; ``unheard``
+    names the profiles given for robots that sent nothing (``unheard_profiles``)."""
     if snap is None:
         return f"{source_label}: waiting for a robot"
     if snap.state is LinkState.WAITING:
@@ -75,7 +77,7 @@ def status_line(snap: RobotSnapshot | None, now: float, source_label: str) -> st
     else:
         text = f"{snap.robot}: receiving, {snap.rate_hz:.0f} messages/s"
     if not snap.has_profile:
-        text += "; no profile for this robot (give one with --profile): not recomputed"
+        text += f"; no profile for this robot ({missing_profile_hint(snap.robot, unheard)}): not recomputed"
     return f"{source_label} \u00b7 {text}"
 
 
@@ -94,7 +96,8 @@ def refresh(
     if robot not in snapshots:
         robot = robots[0] if robots else None
     unit, metres_per_unit = _unit(shown, robot)
-    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, status=status_line(snapshots.get(robot), now, source.label), now=now)
+    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit,
+                  status=status_line(snapshots.get(robot), now, source.label, unheard_profiles(snapshots)), now=now)
     named = sum((Counter(snap.errors) for snap in snapshots.values()), Counter())
     out.unattributed = {
         str(reason): count - named[str(reason)] for reason, count in hub.errors.items() if count > named[str(reason)]

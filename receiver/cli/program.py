@@ -17,6 +17,7 @@ from receiver.cli.check_commands import add_check_commands
 from receiver.cli.compare_command import add_compare_command
 from receiver.cli.live_commands import add_live_commands
 from receiver.cli.offline_commands import add_offline_commands
+from receiver.cli.profile_commands import add_profile_commands
 from receiver.errors import PodwatchError
 
 
@@ -32,6 +33,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_check_commands(sub)
     add_compare_command(sub)
     add_live_commands(sub)
+    add_profile_commands(sub)
     return parser
 
 

@@ -21,7 +21,7 @@ from typing import Callable
 from receiver.errors import UsageError
 from receiver.formats.recording_writer import RecordingWriter
 from receiver.live.hub import Hub
-from receiver.live.session import summary_line
+from receiver.live.session import summary_line, unheard_profiles
 from receiver.live.transports.mqtt import DEFAULT_PREFIX, MqttLink, samples_topic
 from receiver.live.transports.udp import UdpReceiver
 from receiver.live.transports.websocket import WebSocketReceiver
@@ -182,9 +182,11 @@ def summary_lines(hub: Hub) -> list[str]:
     and ``replay`` print at the end.
     """
     lines = []
-    for robot, snap in hub.snapshot(time.time()).items():
+    snapshots = hub.snapshot(time.time())
+    unheard = unheard_profiles(snapshots)
+    for robot, snap in snapshots.items():
         profile = hub.profiles.get(robot)
-        lines.append(summary_line(snap, profile.distance_unit if profile else None))
+        lines.append(summary_line(snap, profile.distance_unit if profile else None, unheard))
     if hub.errors:
         reasons = ", ".join(f"{reason} {n}" for reason, n in sorted(hub.errors.items()))
         lines.append(f"refused {sum(hub.errors.values())} messages: {reasons}")

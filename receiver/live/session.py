@@ -13,6 +13,7 @@ from collections import Counter
 from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass, field, replace
 from enum import Enum
+from typing import Sequence
 
 import numpy as np
 
@@ -21,7 +22,7 @@ from receiver.live.ring_buffer import Cut, PendingRows, RingBuffer
 from receiver.odometry.columns import Columns, columns_from_samples
 from receiver.odometry.counts import ACCEPTED, SEQ_MODULUS, SampleKind, classify
 from receiver.odometry.recompute import Result, Tracker, loop_periods
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, missing_profile_hint
 
 DEFAULT_WINDOW_S = 600.0
 DEFAULT_QUIET_AFTER_S = 1.0
@@ -361,14 +362,23 @@ def pose_message(robot: str, result: Result) -> PoseMessage:
                        position_error=float(result.position_error[-1]), heading_error=float(result.heading_error[-1]))
 
 
-def summary_line(snap: RobotSnapshot, unit: str | None) -> str:
-    """One line per robot for the end of ``serve`` and ``replay``."""
+def unheard_profiles(snapshots: dict[str, RobotSnapshot]) -> list[str]:
+    """The robots a profile was given for that have sent nothing: a robot without a profile
+    may be one of them under another name."""
+    return [name for name, snap in snapshots.items() if snap.has_profile and snap.messages == 0]
+
+
+def summary_line(snap: RobotSnapshot, unit: str | None, unheard: Sequence[str] = ()) -> str:
+    """One line per robot for the end of ``serve`` and ``replay``; ``unheard`` names the
+    profiles given for robots that sent nothing (see ``unheard_profiles``)."""
     errors = sum(snap.errors.values())
     text = (
         f"{snap.robot}: {snap.messages} messages, {snap.gaps} gaps, {snap.duplicates} duplicates, "
         f"{snap.late} late, {errors} decode errors"
     )
     if not snap.has_profile:
+        if unheard:
+            return text + f"; no profile, not recomputed: {missing_profile_hint(snap.robot, unheard)}"
         return text + "; no profile, not recomputed"
     if np.isfinite(snap.position_error):
         return text + (

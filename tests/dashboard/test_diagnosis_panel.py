@@ -79,6 +79,39 @@ def test_diagnosis_names_the_mistake_the_confidence_and_the_profile_change(rever
     assert sum(line in {r.hypothesis.id for r in d.ranking[:4]} for line in lines) == 4
 
 
+def test_the_panel_says_what_the_command_line_says(reversed_cols):
+    # The same words as `podwatch diagnose` (receiver/analysis/wording.py): the
+    # confidence with the noise it was judged against, the integration, the notes.
+    from receiver.cli.check_commands import _diagnosis_text
+
+    d = diagnose(reversed_cols, PRACTICE)
+    page = lines_of(diagnosis_view(d, "x"))
+    cli = _diagnosis_text(d)
+    for prefix in ("confidence: ", "integration: ", "note: "):
+        shown = [line for line in cli if line.startswith(prefix)]
+        assert shown and all(line in page for line in shown)
+    assert "times the clip's noise of 0.00053 in" in text_of(diagnosis_view(d, "x"))
+
+
+def test_a_robot_without_a_profile_while_another_name_was_given(tmp_path):
+    from dataclasses import replace
+
+    from receiver.formats.protocol import encode
+
+    mine = replace(PRACTICE, name="my-robot")
+    bare = tmp_path / "bare.jsonl"
+    bare.write_bytes(b"\n".join(encode(s) for s in simulate(mine, "spin", 50.0, 2.0, 1).stamp_rx(100.0)) + b"\n")
+    replay = ReplaySource(read_recording(bare, {"practice-bot": 3}), {"practice-bot": PRACTICE}, clock=lambda: 0.0)
+    station = TabView(None, replay)
+    replay.seek(2.0)
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "my-robot", 10.0, "x")
+    assert confidence is None
+    assert text_of(result) == (
+        "my-robot has no profile (the profile given is named practice-bot; the messages come from my-robot: "
+        'set name = "my-robot" in the profile, or send that name): nothing to diagnose.'
+    )
+
+
 def test_a_clip_without_turning_says_not_enough_motion():
     run = simulate(PRACTICE, "push-forward", 100.0, 4.0, 3, parse_faults(["reversed:back"], PRACTICE))
     d = diagnose(columns_from_samples(run.samples, len(PRACTICE.wheels)), PRACTICE)

@@ -150,3 +150,21 @@ def test_lengths_on_the_command_line(text, metres):
 def test_bad_lengths_are_refused(text):
     with pytest.raises(UsageError, match="expected a positive length"):
         parse_length(text)
+
+
+def test_a_robot_without_a_profile_is_told_the_name_to_set():
+    def snap(robot, has_profile, messages):
+        return RobotSnapshot(
+            robot=robot, state=LinkState.LIVE if messages else LinkState.WAITING, has_profile=has_profile,
+            messages=messages, rate_hz=50.0, gaps=0, duplicates=0, late=0, restarts=0, resets=0, errors={},
+            loop_mean_s=0.02, loop_p50_s=0.02, loop_p95_s=0.02, loop_max_s=0.02, jitter_s=0.0, pose=None,
+            reported=None, position_error=float("nan"), heading_error=float("nan"), last_rx=1.0,
+        )
+
+    snapshots = {"practice-bot": snap("practice-bot", True, 0), "my-robot": snap("my-robot", False, 40)}
+    line = view.status_line(snapshots["my-robot"], 2.0, "live", view.unheard_profiles(snapshots))
+    assert line.endswith(
+        "; no profile for this robot (the profile given is named practice-bot; the messages come from my-robot: "
+        'set name = "my-robot" in the profile, or send that name): not recomputed'
+    )
+    assert view.status_line(snapshots["my-robot"], 2.0, "live").endswith("(give one with --profile): not recomputed")
