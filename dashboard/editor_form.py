@@ -31,8 +31,11 @@ BOOL_OPTIONS = [{"label": "true", "value": "true"}, {"label": "false", "value": 
 _SHORT_LABELS = {
     "name": "robot name", "distance_unit": "distance unit", "reported.heading_unit": "reported heading unit",
     "reported.heading_positive": "reported heading grows", "reported.y_axis": "reported +y points",
-    "reported.heading_zero": "reported heading 0 faces", "imu.mode": "IMU",
+    "reported.heading_zero": "reported heading 0 faces", "reported.integration": "robot code integrates",
+    "imu.mode": "IMU",
 }
+# What an optional choice shows while the profile does not declare it.
+UNDECLARED = {"reported.integration": "not declared"}  # the checks find it from the reports
 
 
 def field_id(key: str) -> dict:
@@ -60,7 +63,7 @@ def _control(key: str, setting: Setting, value: Value) -> dcc.Input | dcc.Dropdo
                             className="editor-choice")
     if setting.choices:
         return dcc.Dropdown(id=field_id(key), options=[{"label": c, "value": c} for c in setting.choices],
-                            value=value, clearable=False, className="editor-choice")
+                            value=value, clearable=False, placeholder=UNDECLARED.get(key, ""), className="editor-choice")
     # Text, not a number input: the page reads it as `--set` does, with its messages.
     return dcc.Input(id=field_id(key), type="text", inputMode="decimal" if setting.kind is float else "text",
                      value=field_text(value), debounce=DEBOUNCE_S, className="editor-text")

@@ -22,13 +22,14 @@ from dash import ALL, Dash, Input, Output, State, ctx, dcc, html, no_update
 
 from dashboard import editor_form, ids
 from dashboard.editor_draw import EditorDraw, draw_editor
-from dashboard.editor_state import EditorState, download_text, field_text, field_values, profile_signature
+from dashboard.editor_state import EditorState, field_text, field_values, profile_signature
 from dashboard.settings import Settings
 from dashboard.tabs import Station
 from dashboard.workbench_session import LoadedResults, Session, session_of
 from receiver.analysis.compare import RunRow
 from receiver.errors import PodwatchError, ProfileError
 from receiver.formats.profile_toml import profile_from_table
+from receiver.formats.profile_writer import profile_text, write_profile_preserving
 from receiver.odometry.integrate import METHODS
 from receiver.odometry.robot import Profile
 
@@ -52,7 +53,7 @@ def card(settings: Settings, graph: Callable[[str], html.Div]) -> html.Section:
         ]),
         html.Div(id=ids.EDITOR_BODY, className=CLOSED, children=[
             html.Div(className="panel-controls", children=[
-                dcc.Dropdown(id=ids.EDITOR_METHOD, options=[{"label": f"integrate: {m}", "value": m} for m in METHODS],
+                dcc.Dropdown(id=ids.EDITOR_METHOD, options=[{"label": f"podwatch integrates: {m}", "value": m} for m in METHODS],
                              value=METHODS[0], clearable=False, className="editor-method"),
                 html.Button("Undo", id=ids.EDITOR_UNDO, n_clicks=0, className="button"),
                 html.Button("Reset to loaded profile", id=ids.EDITOR_RESET, n_clicks=0, className="button"),
@@ -160,6 +161,22 @@ def command_line(state: EditorState, session: Session, profile_file: Path | None
     if session.recording is not None:
         return f"podwatch recompute {Path(session.recording).name}{given} {options}"
     return f"as options of podwatch recompute, diagnose, calibrate or compare: {options}"
+
+
+def profile_file_text(edited: Profile, source: Path | None, shown: str) -> tuple[str, str]:
+    """The edited profile as the file to download, and a line for the page: written into the
+    user's own ``source`` file, comments, order and integer types kept (as --write-profile
+    does); a clean commented file for a profile from a recording (``shown``) or a file that
+    cannot be read any more."""
+    if source is not None:
+        try:
+            return write_profile_preserving(source, edited), ""
+        except (PodwatchError, OSError, ValueError) as exc:
+            note = f"{source} could not be read ({exc}): the download is a clean file"
+    else:
+        note = ""
+    header = f"Robot profile of {edited.name}, edited on the podwatch page from {source or shown}."
+    return profile_text(edited, header), note
 
 
 def triggers_seen() -> list[Any]:
@@ -309,6 +326,5 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             edited = EditorState.from_store(data, robot).profile(loaded)
         except ProfileError as exc:
             return no_update, f"cannot download: {exc}"
-        source = station.profile_file(loaded)
-        origin = f"{edited.name}: edited on the page from {source or view.label}"
-        return {"content": download_text(edited, origin), "filename": f"{edited.name}.toml"}, ""
+        text, note = profile_file_text(edited, station.profile_file(loaded), view.label)
+        return {"content": text, "filename": f"{edited.name}.toml"}, note

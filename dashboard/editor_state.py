@@ -18,7 +18,6 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from receiver.formats.profile_set import edited_profile, edits_as_text, parse_edit
-from receiver.formats.profile_toml import dump_profile
 from receiver.odometry.integrate import METHODS
 from receiver.odometry.profile_edit import (
     PROFILE_SETTINGS,
@@ -169,7 +168,3 @@ def profile_signature(profile: Profile) -> str:
     its form and a diagnosis's suggestion were made for."""
     return hashlib.sha1(repr(profile).encode()).hexdigest()[:16]
 
-
-def download_text(profile: Profile, origin: str) -> str:
-    """The edited profile as a TOML file, opening with a comment on where it came from."""
-    return f"# {origin}\n" + dump_profile(profile)

@@ -197,7 +197,9 @@ def _samples(data):
     return samples
 
 
-def test_download_holds_the_tabs_edited_profile_and_names_where_it_came_from(practice_profile):
+def test_download_writes_into_the_users_own_file_or_a_clean_one(practice_profile, tmp_path):
+    """A profile loaded from a file comes back as that file with only the edited values changed
+    (the writer of --write-profile); one from a recording's header as a clean commented file."""
     import tomllib
 
     from receiver.formats.profile_toml import profile_from_table
@@ -212,13 +214,31 @@ def test_download_holds_the_tabs_edited_profile_and_names_where_it_came_from(pra
     values = {f"{ids.EDITOR_DOWNLOAD}.n_clicks": 1, f"{ids.EDITOR}.data": store, f"{ids.ROBOT}.value": "practice-bot"}
     answer = call(app, f"{ids.EDITOR_FILE}.data", values, [f"{ids.EDITOR_DOWNLOAD}.n_clicks"])[ids.EDITOR_FILE]["data"]
     assert answer["filename"] == "practice-bot.toml"
-    downloaded = profile_from_table(tomllib.loads(answer["content"]))
-    assert downloaded.wheels[1].reversed and downloaded.wheels[0] == practice_profile.wheels[0]
-    assert str(source) in answer["content"].splitlines()[0]
-    # Another tab, no edits: the loaded profile as it is.
-    plain = call(app, f"{ids.EDITOR_FILE}.data", {**values, f"{ids.EDITOR}.data": None, f"{ids.VIEW_ID}.data": "tab-b"},
-                 [f"{ids.EDITOR_DOWNLOAD}.n_clicks"])[ids.EDITOR_FILE]["data"]
-    assert profile_from_table(tomllib.loads(plain["content"])) == practice_profile
+    text = answer["content"]
+    assert profile_from_table(tomllib.loads(text)) == edited(EditorState("practice-bot"), "wheel.1.reversed", "true",
+                                                              practice_profile).profile(practice_profile)
+    # The user's file, comments and integers kept: only the right wheel's reversed line differs.
+    changed = [(a, b) for a, b in zip(source.read_text().splitlines(), text.splitlines()) if a != b]
+    assert len(text.splitlines()) == len(source.read_text().splitlines())
+    assert [b.strip() for _, b in changed] == ["reversed = true"]
+    assert text.startswith("# Our invented practice robot") and "counts_per_rev = 8192\n" in text
+
+    # The recording's own profile (no file given): a clean file saying where it came from.
+    header_only = create_app(Station(recording=read_recording(REVERSED),
+                                     make_replay=lambda data: ReplaySource(data, clock=lambda: 0.0)))
+    clean = call(header_only, f"{ids.EDITOR_FILE}.data", values, [f"{ids.EDITOR_DOWNLOAD}.n_clicks"])
+    content = clean[ids.EDITOR_FILE]["data"]["content"]
+    assert content.startswith("# Robot profile of practice-bot, edited on the podwatch page from ")
+    assert "practice-bot-figure-eight-reversed-right.jsonl.gz" in content.splitlines()[0]
+    assert profile_from_table(tomllib.loads(content)).wheels[1].reversed
+
+
+def test_a_profile_file_gone_since_start_gives_a_clean_file_and_says_so(practice_profile, tmp_path):
+    from dashboard.editor_panel import profile_file_text
+
+    text, note = profile_file_text(practice_profile, tmp_path / "gone.toml", "live")
+    assert note.startswith(f"{tmp_path / 'gone.toml'} could not be read") and "clean file" in note
+    assert text.startswith("# Robot profile of practice-bot, edited on the podwatch page from ")
 
 
 def test_kept_recomputes_are_bounded_and_reused(replay_tab):

@@ -1,17 +1,14 @@
 """The profile editor's state (dashboard/editor_state.py): edits applied, compacted to the
-`--set` options that repeat them, undone and reset, kept in the page's store, and the
-profile the download holds."""
+`--set` options that repeat them, undone and reset, and kept in the page's store (the
+download's text: tests/dashboard/test_editor_panel.py)."""
 
 from __future__ import annotations
-
-import tomllib
 
 import pytest
 
 from dashboard.editor_state import (
     UNDO_STEPS,
     EditorState,
-    download_text,
     field_keys,
     field_text,
     field_values,
@@ -19,7 +16,6 @@ from dashboard.editor_state import (
 )
 from receiver.cli.common import edit_profiles
 from receiver.errors import ProfileError
-from receiver.formats.profile_toml import profile_from_table
 from receiver.odometry.profile_edit import PROFILE_SETTINGS, WHEEL_SETTINGS
 
 
@@ -129,14 +125,6 @@ def test_the_form_has_a_field_for_every_setting(practice_profile):
     assert values["wheel.1.y"] == -6.25 and values["reported.y_axis"] == "left" and values["wheel.2.reversed"] is False
     assert [field_text(v) for v in (8192.0, 8192, 1.378, True, False, "deg", None)] == \
         ["8192", "8192", "1.378", "true", "false", "deg", ""]
-
-
-def test_the_download_holds_the_edited_profile(fresh, practice_profile):
-    edited = fresh.with_field(practice_profile, "wheel.1.reversed", "true").with_field(
-        practice_profile, "wheel.2.x", "-5.7").profile(practice_profile)
-    text = download_text(edited, "practice-bot: edited on the page")
-    assert text.startswith("# practice-bot: edited on the page\n")
-    assert profile_from_table(tomllib.loads(text)) == edited
 
 
 def test_the_signature_follows_every_value(fresh, practice_profile):
