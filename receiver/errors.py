@@ -25,3 +25,11 @@ class RecordingError(PodwatchError):
 
 class UsageError(PodwatchError):
     """A command-line request that cannot be carried out as given."""
+
+
+class RecordingExistsError(RecordingError):
+    """A recording file that is already there: podwatch never overwrites or appends to one."""
+
+
+class LinkError(PodwatchError):
+    """A peer on the network that cannot be reached or refused us (a receiver, a broker)."""

@@ -23,6 +23,11 @@ from receiver.odometry.columns import Columns
 # about 15 MB (four wheels: 13 numbers a row).
 DEFAULT_RAW_WINDOW_S = 180.0
 DEFAULT_RAW_MAX_ROWS = 180_000
+# Robots kept: twice the hub's robot limit, since the hub frees the slots of
+# silent robots without a profile and new names take them. Past it, a new
+# robot takes the place of the one heard least recently, so names invented
+# by a sender cannot grow this without bound (each robot costs 0.4 MB).
+DEFAULT_RAW_MAX_ROBOTS = 128
 _FLUSH_ROWS = 256
 _FLOAT_COLUMNS = (("rx", None), ("t", None), ("pose", 3), ("imu", None), ("loop", None))
 _NAN3 = (math.nan, math.nan, math.nan)
@@ -33,6 +38,7 @@ class _RobotRaw:
 
     def __init__(self, n_wheels: int, window_s: float, max_rows: int) -> None:
         self.n_wheels = n_wheels
+        self.last_rx = -math.inf  # the newest sample's rx, for choosing the robot to forget
         self.ring = RingBuffer(
             {"rx": (float, None), "seq": (np.int64, None), "t": (float, None), "ticks": (np.int64, n_wheels),
              "pose": (float, 3), "imu": (float, None), "loop": (float, None), "reset": (bool, None)},
@@ -51,9 +57,13 @@ class RawHistory:
     to read from another thread than the one feeding it.
     """
 
-    def __init__(self, window_s: float = DEFAULT_RAW_WINDOW_S, max_rows: int = DEFAULT_RAW_MAX_ROWS) -> None:
+    def __init__(
+        self, window_s: float = DEFAULT_RAW_WINDOW_S, max_rows: int = DEFAULT_RAW_MAX_ROWS,
+        max_robots: int = DEFAULT_RAW_MAX_ROBOTS,
+    ) -> None:
         self.window_s = window_s
         self.max_rows = max_rows
+        self.max_robots = max_robots
         self._robots: dict[str, _RobotRaw] = {}
         self._lock = threading.Lock()
 
@@ -65,7 +75,10 @@ class RawHistory:
                 if raw is None or raw.n_wheels != len(sample.ticks):
                     # A new robot, or one the hub now expects another number
                     # of counts from: its old rows cannot share columns.
+                    if raw is None and len(robots) >= self.max_robots:
+                        del robots[min(robots, key=lambda name: robots[name].last_rx)]
                     raw = robots[sample.robot] = _RobotRaw(len(sample.ticks), self.window_s, self.max_rows)
+                raw.last_rx = sample.rx if sample.rx is not None else raw.last_rx
                 # the row, as _FLOAT_COLUMNS and then seq, reset and the counts (inline: this runs per sample)
                 pose = sample.pose if sample.pose is not None else _NAN3
                 pending = raw.pending

@@ -16,7 +16,7 @@ from enum import Enum
 
 import numpy as np
 
-from receiver.formats.protocol import PoseMessage, Sample
+from receiver.formats.protocol import PoseMessage, Reason, Sample
 from receiver.live.ring_buffer import Cut, PendingRows, RingBuffer
 from receiver.odometry.columns import Columns, columns_from_samples
 from receiver.odometry.counts import ACCEPTED, SEQ_MODULUS, SampleKind, classify
@@ -361,13 +361,27 @@ def pose_message(robot: str, result: Result) -> PoseMessage:
                        position_error=float(result.position_error[-1]), heading_error=float(result.heading_error[-1]))
 
 
+def summary_of_stats(robot: str, stats: LinkStats) -> str:
+    """The summary line of a robot whose slot was freed: its link counts only."""
+    capped = stats.errors.get(Reason.OVER_RATE_CAP, 0)
+    errors = sum(stats.errors.values()) - capped
+    return (
+        f"{robot}: {stats.messages} messages, {stats.gaps} gaps, {stats.duplicates} duplicates, {stats.late} late, "
+        f"{errors} decode errors{f', {capped} over the rate cap' if capped else ''}; no profile, slot freed after "
+        "its silence"
+    )
+
+
 def summary_line(snap: RobotSnapshot, unit: str | None) -> str:
     """One line per robot for the end of ``serve`` and ``replay``."""
-    errors = sum(snap.errors.values())
+    capped = snap.errors.get(Reason.OVER_RATE_CAP, 0)
+    errors = sum(snap.errors.values()) - capped
     text = (
         f"{snap.robot}: {snap.messages} messages, {snap.gaps} gaps, {snap.duplicates} duplicates, "
         f"{snap.late} late, {errors} decode errors"
     )
+    if capped:
+        text += f", {capped} over the rate cap"
     if not snap.has_profile:
         return text + "; no profile, not recomputed"
     if np.isfinite(snap.position_error):
