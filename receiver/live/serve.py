@@ -279,7 +279,7 @@ class LiveReceiver:
         try:
             self.pump.stop()
         except Exception as exc:  # the last batch: its failure must not cost the summary
-            self.supervisor.failed("processing (pump)", exc, may_give_up=False)
+            self.supervisor.failed_once("processing (pump)", exc, " of the last messages")
         if self.hub.recorder is not None:
             try:
                 self.hub.recorder.close()

@@ -1,13 +1,15 @@
 """Supervision of the receiver's threads and tasks: no worker dies quietly.
 
 Owns the policy for a worker (the UDP loop, the pump, the MQTT link, the
-demo's robot, a WebSocket connection's handler) that raises: one log line
+demo's robot) that raises: one log line
 with the reason, the worker marked RESTARTING in ``Health`` (the page's
 status line shows it), and a restart after a pause that doubles from
 RESTART_DELAY_S up to MAX_RESTART_DELAY_S. A worker that fails MAX_FAILURES
 times within FAILURE_WINDOW_S is marked FAILED and ``on_fatal`` is called:
 ``serve`` then stops with a non-zero exit rather than show "live" over a
-dead pipeline. It never decides what a worker does.
+dead pipeline. A failure that ends only itself (a WebSocket connection's
+handler: a sender can cause it) is logged and counted in a note instead. It
+never decides what a worker does.
 """
 
 from __future__ import annotations
@@ -21,7 +23,7 @@ import time
 from collections import deque
 from typing import Awaitable, Callable
 
-from receiver.live.health import Health, WorkerEvent, WorkerState
+from receiver.live.health import Health, WorkerEvent
 
 RESTART_DELAY_S = 0.1
 MAX_RESTART_DELAY_S = 5.0
@@ -61,15 +63,26 @@ class Supervisor:
         self.fatal: str | None = None  # the first reason the receiver must stop
         self._lock = threading.Lock()
         self._failures: dict[str, deque[float]] = {}
+        self._once: dict[str, int] = {}
 
     def started(self, name: str) -> None:
         """``name`` runs (again)."""
         self.health.worker(name, WorkerEvent.STARTED)
 
-    def failed(self, name: str, exc: BaseException, may_give_up: bool = True) -> float | None:
+    def failed_once(self, what: str, exc: BaseException, detail: str = "") -> None:
+        """``what`` (one connection's handler, say) raised ``exc`` and ended: one log line, and
+        a link note with the running count; nothing restarts and nothing stops."""
+        text = reason(exc)
+        with self._lock:
+            count = self._once[what] = self._once.get(what, 0) + 1
+        if os.environ.get(DEBUG_ENV):
+            log.error("%s failed", what, exc_info=exc)
+        log.error("%s%s failed: %s; it was closed, the rest goes on", what, detail, text)
+        self.health.set_note(f"failed: {what}", f"{what}: {count} failed, the last with {text}")
+
+    def failed(self, name: str, exc: BaseException) -> float | None:
         """Log and show that ``name`` raised ``exc``; the pause before its restart (s), or
-        None when it failed too often (``on_fatal`` has been called). A worker whose
-        failures a sender can cause (a connection's handler) passes ``may_give_up=False``."""
+        None when it failed too often (``on_fatal`` has been called)."""
         now = self.clock()
         text = reason(exc)
         with self._lock:
@@ -78,10 +91,10 @@ class Supervisor:
             while times and now - times[0] > FAILURE_WINDOW_S:
                 times.popleft()
             recent = len(times)
-        status = self.health.worker(name, WorkerEvent.CRASHED, text)
+        self.health.worker(name, WorkerEvent.CRASHED, text)
         if os.environ.get(DEBUG_ENV):
             log.error("%s failed", name, exc_info=exc)
-        if may_give_up and recent >= MAX_FAILURES:
+        if recent >= MAX_FAILURES:
             self.health.worker(name, WorkerEvent.GAVE_UP)
             why = f"{name} failed {recent} times in {FAILURE_WINDOW_S:g} s, last: {text}"
             log.error("%s; stopping", why)
@@ -93,8 +106,7 @@ class Supervisor:
                 self.on_fatal(why)
             return None
         pause = min(RESTART_DELAY_S * 2 ** (recent - 1), MAX_RESTART_DELAY_S)
-        then = "restarting" if may_give_up else "the others go on"
-        log.error("%s failed (%d in the last %g s): %s; %s", name, status.failures, FAILURE_WINDOW_S, text, then)
+        log.error("%s failed (%d in the last %g s): %s; restarting", name, recent, FAILURE_WINDOW_S, text)
         return pause
 
     def run_thread(self, name: str, body: Callable[[], None], stop: threading.Event) -> None:
@@ -125,7 +137,3 @@ class Supervisor:
                     return
                 await asyncio.sleep(pause)
                 self.started(name)
-
-    def is_failed(self, name: str) -> bool:
-        """Whether ``name`` has failed for good."""
-        return any(w.name == name and w.state is WorkerState.FAILED for w in self.health.workers())

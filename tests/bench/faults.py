@@ -34,7 +34,6 @@ recording holds and its exit status:
 from __future__ import annotations
 
 import argparse
-import json
 import multiprocessing as mp
 import os
 import resource

@@ -118,8 +118,8 @@ class WebSocketReceiver:
                 failure = Failure(Reason.TOO_LARGE, f"frame over {MAX_MESSAGE_BYTES} bytes; connection closed")
                 self.hub.ingest([], [failure], time.time(), SOURCE)
         except Exception as exc:  # the handler's top: log, close this connection, keep serving the others
-            peer = "%s:%s" % connection.remote_address[:2] if connection.remote_address else "a client"
-            self.supervisor.failed(f"websocket connection from {peer}", exc, may_give_up=False)
+            peer = " from %s:%s" % connection.remote_address[:2] if connection.remote_address else ""
+            self.supervisor.failed_once("websocket connection", exc, peer)
             await connection.close(CloseCode.INTERNAL_ERROR, "podwatch could not process a frame")
         finally:
             self.connections -= 1
