@@ -21,9 +21,10 @@ from typing import Callable, Protocol, Sequence
 import numpy as np
 
 from receiver.formats.protocol import Failure, PoseMessage, Reason, Sample
-from receiver.live.gate import DEFAULT_MAX_RATE, OTHER_NAMES, Gate, Network
+from receiver.live.gate import DEFAULT_MAX_RATE, Gate, Network
 from receiver.live.health import Health
 from receiver.live.refusals import RefusalLog
+from receiver.live.ring_buffer import SMALL_BLOCK_ROWS
 from receiver.live.session import (
     DEFAULT_MAX_ROWS,
     DEFAULT_QUIET_AFTER_S,
@@ -45,6 +46,12 @@ IDLE_SLOT_S = 10.0  # DESIGN.md: a robot without a profile that is quiet this lo
 MAX_BACKLOG = 20_000
 FLOOD_SHOWN_S = 5.0  # a robot over the rate cap is named on the page this long after its last refusal
 MAX_RETIRED = 1024  # robots whose slot was freed, kept for the summary
+# Rows the robots without a profile share (about 39 MB at 97 bytes a row,
+# in blocks of SMALL_BLOCK_ROWS): one of them keeps 400 s at 1 kHz, and
+# names invented under the rate cap cannot make the receiver hold more than
+# this between them. Robots named in a profile are the user's own and keep
+# DEFAULT_MAX_ROWS each.
+UNPROFILED_ROWS = 400_000
 log = logging.getLogger("podwatch.hub")
 
 
@@ -155,7 +162,8 @@ class Hub:
         assert raws is None or len(raws) == len(samples), "raws must pair up with samples"
         with self._pending_lock:
             self._pending.append((samples, failures, rx, source, raws))
-            self._backlog += len(samples) + len(failures)
+            if wake:  # a caller that processes right after (UDP) adds at most a pass's worth
+                self._backlog += len(samples) + len(failures)
         # Set only when clear (``process`` clears it under the same lock, after
         # taking the queue): Event.set is pure Python, as dear as a decode.
         if wake and not self._has_pending.is_set():
@@ -168,7 +176,7 @@ class Hub:
 
     def new_gate(self) -> Gate:
         """A gate for one transport (its own thread), with this hub's rate cap and allowed
-        networks; ``process`` and ``check`` count and log what it refuses."""
+        networks; ``check`` counts and logs what it refused."""
         gate = Gate(self.max_rate, self.allow)
         self._gates.append(_GateTally(gate))
         return gate
@@ -212,9 +220,6 @@ class Hub:
                     accepted.append((sample, source))
                     kept.append(sample)
                     kept_raws.append(None if raws is None else raws[k])
-            for tally in self._gates:
-                if tally.gate.refused != tally.seen:
-                    self._count_gate(tally, now)
             recorder = self.recorder
             if recorder is not None:
                 try:
@@ -256,6 +261,7 @@ class Hub:
                 )
                 return False
             session = self.sessions[robot] = self._new_session(robot, None)
+            self._share_rows()
             stats = self.retired.pop(robot, None)
             if stats is not None:  # back after its slot was freed: its counts go on
                 session.stats = stats
@@ -286,7 +292,18 @@ class Hub:
         while len(self.retired) > MAX_RETIRED:
             del self.retired[next(iter(self.retired))]
             self.retired_dropped += 1
+        if idle:
+            self._share_rows()
         return bool(idle)
+
+    def _share_rows(self) -> None:
+        """Give each robot without a profile its share of UNPROFILED_ROWS (a small block's
+        worth at least, this hub's max_rows at most)."""
+        unprofiled = [session for session in self.sessions.values() if session.profile is None]
+        if unprofiled:
+            each = min(self.max_rows, max(SMALL_BLOCK_ROWS, UNPROFILED_ROWS // len(unprofiled)))
+            for session in unprofiled:
+                session.ring.max_rows = each
 
     def _stop_recording(self, recorder: Recorder, exc: OSError) -> None:
         """A write or flush failed (disk full, device gone): stop recording, keep receiving."""
@@ -302,11 +319,11 @@ class Hub:
         gate = tally.gate
         tally.seen = gate.refused
         over, tally.over = tally.over, dict(gate.over_cap)  # copies: the transport's thread goes on writing
-        for name, n in tally.over.items():
-            n -= over.get(name, 0)
+        for robot, n in tally.over.items():
+            n -= over.get(robot, 0)
             if n <= 0:
                 continue
-            robot = name.decode("utf-8", "replace") if name != OTHER_NAMES else "(no robot name)"
+            robot = robot or "(no robot name)"
             self.errors[Reason.OVER_RATE_CAP] += n
             session = self.sessions.get(robot)
             if session is not None:
@@ -334,7 +351,8 @@ class Hub:
         self.health.set_note(Reason.SOURCE_NOT_ALLOWED, f"refused, not in --allow: {text}" if text else None)
 
     def check(self, now: float) -> None:
-        """Once a second or so (the pump): count what the gates refused, and stop naming a
+        """Once a second or so (the pump), and at the end: count what the gates refused
+        (not in ``process``, which runs for every pass of the UDP loop), and stop naming a
         robot as over the rate cap FLOOD_SHOWN_S after its last refusal."""
         with self._state_lock:
             for tally in self._gates:
@@ -384,7 +402,7 @@ class _GateTally:
     def __init__(self, gate: Gate) -> None:
         self.gate = gate
         self.seen = 0
-        self.over: dict[bytes, int] = {}
+        self.over: dict[str, int] = {}
         self.refused: dict[str, int] = {}
 
 

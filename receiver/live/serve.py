@@ -280,6 +280,7 @@ class LiveReceiver:
             self.pump.stop()
         except Exception as exc:  # the last batch: its failure must not cost the summary
             self.supervisor.failed_once("processing (pump)", exc, " of the last messages")
+        self.hub.check(time.time())  # the gates' last refusals
         if self.hub.recorder is not None:
             try:
                 self.hub.recorder.close()

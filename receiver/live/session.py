@@ -17,7 +17,7 @@ from enum import Enum
 import numpy as np
 
 from receiver.formats.protocol import PoseMessage, Reason, Sample
-from receiver.live.ring_buffer import Cut, PendingRows, RingBuffer
+from receiver.live.ring_buffer import BLOCK_ROWS, SMALL_BLOCK_ROWS, Cut, PendingRows, RingBuffer
 from receiver.odometry.columns import Columns, columns_from_samples
 from receiver.odometry.counts import ACCEPTED, SEQ_MODULUS, SampleKind, classify
 from receiver.odometry.recompute import Result, Tracker, loop_periods
@@ -144,7 +144,9 @@ class Session:
         self.n_wheels: int | None = len(profile.wheels) if profile is not None else None
         self.state = LinkState.WAITING
         self.stats = LinkStats()
-        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows)
+        # a robot without a profile shares its rows with others (Hub): small blocks
+        block_rows = BLOCK_ROWS if profile is not None else SMALL_BLOCK_ROWS
+        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows, block_rows=block_rows)
         self._last: tuple[int, float] | None = None  # last accepted (seq, t)
         self._last_rx = np.nan
         self._jitter_s: float | None = None

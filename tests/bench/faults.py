@@ -2,7 +2,7 @@
 
     .venv/bin/python tests/bench/faults.py flood [--compare DIR] [--flood-rate 100000] [--seconds 10]
     .venv/bin/python tests/bench/faults.py names [--compare DIR]
-    .venv/bin/python tests/bench/faults.py ws-flood [--compare DIR] [--seconds 20] [--names 1]
+    .venv/bin/python tests/bench/faults.py ws-flood [--compare DIR] [--seconds 10] [--clients 1] [--names 1]
     .venv/bin/python tests/bench/faults.py disk-full [--compare DIR]
     .venv/bin/python tests/bench/faults.py sigkill [--compare DIR] [--repeat 5]
     .venv/bin/python tests/bench/faults.py existing [--compare DIR]
@@ -19,8 +19,9 @@ recording holds and its exit status:
   flooding under another name at --flood-rate datagrams/s; the good robot's
   loss is what counts.
 - names: 100 invented robot names, then a real robot 11 s later.
-- ws-flood: WebSocket clients with the token sending as fast as they can
-  under --names names; the receiver's peak memory (VmHWM) is what counts.
+- ws-flood: --clients WebSocket clients with the token sending batches as
+  fast as they can, each under --names names in turn; the receiver's peak
+  memory (VmHWM) is what counts.
 - disk-full: the recording on a 1 MB tmpfs (as root) or, otherwise, under a
   file size limit of 1 MB (RLIMIT_FSIZE: the kernel refuses writes past it
   with EFBIG), a robot at 1 kHz for 10 s.
@@ -199,35 +200,41 @@ def names(args) -> None:
             say_result(label, late_sent=sent, late_taken=serve.robot_messages("late-bot"), exit=code)
 
 
-def _ws_client(port: int, token: str, robot: str, seconds: float, result) -> None:
+def _ws_client(port: int, token: str, names: list[str], seconds: float, result) -> None:
     import asyncio
 
     from websockets.asyncio.client import connect
 
     async def run() -> int:
-        sent = 0
+        sent, seq = 0, {name: 0 for name in names}
         async with connect(f"ws://127.0.0.1:{port}/?token={token}", compression=None) as ws:
             end = time.monotonic() + seconds
             while time.monotonic() < end:
-                batch = b"[" + b",".join(message(robot, sent + k, 0.001 * (sent + k)) for k in range(64)) + b"]"
-                await ws.send(batch, text=True)
-                sent += 64
+                for name in names:
+                    first = seq[name]
+                    batch = b"[" + b",".join(message(name, first + k, 0.001 * (first + k)) for k in range(64)) + b"]"
+                    seq[name] = first + 64
+                    await ws.send(batch, text=True)
+                    sent += 64
         return sent
 
     result.put(asyncio.run(run()))
 
 
 def ws_flood(args) -> None:
-    print(f"{args.names} WebSocket client(s) with the token, each under its own name, sending batches of 64 as fast "
-          f"as they can for {args.seconds:g} s")
+    print(f"{args.clients} WebSocket client(s) with the token, sending batches of 64 under {args.names} name(s) "
+          f"each in turn, as fast as they can for {args.seconds:g} s")
     for label, tree in trees(args).items():
         with tempfile.TemporaryDirectory() as tmp:
-            port = free_port(socket.SOCK_STREAM)
-            serve = Serve(tree, ["--ws", f"127.0.0.1:{port}", "--token", "s3cret", "--no-dashboard"], Path(tmp))
-            serve.wait_listening("listening: websocket")
+            port, page = free_port(socket.SOCK_STREAM), free_port(socket.SOCK_STREAM)
+            # with the page, as serve runs by default: its listener keeps each robot's raw samples
+            serve = Serve(tree, ["--ws", f"127.0.0.1:{port}", "--token", "s3cret", "--dashboard", f"127.0.0.1:{page}"],
+                          Path(tmp))
+            serve.wait_listening("dashboard:")
             result = mp.Queue()
-            clients = [mp.Process(target=_ws_client, args=(port, "s3cret", f"ws-flood-{k}", args.seconds, result))
-                       for k in range(args.names)]
+            names = [[f"ws-flood-{c}-{k}" for k in range(args.names)] for c in range(args.clients)]
+            clients = [mp.Process(target=_ws_client, args=(port, "s3cret", names[c], args.seconds, result))
+                       for c in range(args.clients)]
             for client in clients:
                 client.start()
             sent = sum(result.get() for _ in clients)
@@ -235,7 +242,7 @@ def ws_flood(args) -> None:
                 client.join()
             peak = serve.peak_rss_mb()
             code = serve.stop()
-            taken = sum(serve.robot_messages(f"ws-flood-{k}") or 0 for k in range(args.names))
+            taken = sum(serve.robot_messages(name) or 0 for group in names for name in group)
             say_result(label, sent=f"{sent:,}", taken=f"{taken:,}", peak_rss=f"{peak:.0f} MB", exit=code)
 
 
@@ -373,7 +380,8 @@ def main() -> None:
     parser.add_argument("--compare", metavar="DIR", help="also run the receiver package under DIR")
     parser.add_argument("--seconds", type=float, default=10.0, help="flood length (default 10)")
     parser.add_argument("--flood-rate", type=float, default=100_000.0, help="flood datagrams/s (default 100000)")
-    parser.add_argument("--names", type=int, default=1, help="ws-flood: clients, each under its own name")
+    parser.add_argument("--names", type=int, default=1, help="ws-flood: names each client sends under (default 1)")
+    parser.add_argument("--clients", type=int, default=1, help="ws-flood: clients (default 1)")
     parser.add_argument("--repeat", type=int, default=3, help="sigkill: runs per tree (default 3)")
     args = parser.parse_args()
     print(f"{os.cpu_count()} cores; 1-minute load average {os.getloadavg()[0]:.2f}")

@@ -13,8 +13,10 @@ import pytest
 
 import receiver.live.hub as hub_module
 from receiver.formats.protocol import Reason, decode, decode_keeping_raw
-from receiver.live.gate import MAX_COUNTED_NAMES, OTHER_NAMES, WINDOW_S, Gate, parse_networks, robot_name
+from receiver.live.gate import MAX_COUNTED_NAMES, OTHER_NAMES, OTHER_ROBOTS, WINDOW_S, Gate, parse_networks, robot_name
 from receiver.live.hub import IDLE_SLOT_S, Hub
+from receiver.live.raw_history import DEFAULT_RAW_MAX_ROBOTS, RawHistory
+from receiver.live.ring_buffer import SMALL_BLOCK_ROWS
 from receiver.live.serve import summary_lines
 from tests.live.serve_process import message
 from tests.live.test_session import ListRecorder
@@ -29,26 +31,42 @@ def test_the_gate_reads_the_robot_name_from_the_bytes():
     assert robot_name(b"not json at all") == OTHER_NAMES
 
 
+class CountingDecoder:
+    """decode_keeping_raw, counting its calls."""
+
+    def __init__(self):
+        self.calls = 0
+
+    def __call__(self, data):
+        self.calls += 1
+        return decode_keeping_raw(data)
+
+
 def test_the_rate_cap_counts_messages_per_robot_and_window():
-    gate = Gate(max_rate=100.0)
+    gate, decode = Gate(max_rate=100.0), CountingDecoder()
     flood, good = message("flood-bot", 0, 0.0), message("practice-bot", 0, 0.0)
-    admitted = [gate.admit(flood, RX0 + 0.001 * k) for k in range(300)]
-    assert admitted == [True] * 100 + [False] * 200
-    assert all(gate.admit(good, RX0 + 0.3) for _ in range(50))  # another name keeps its own count
-    assert gate.over_cap == {b"flood-bot": 200} and gate.refused == 200
-    assert gate.admit(flood, RX0 + WINDOW_S + 0.001)  # a new window
+    taken = [gate.take(flood, RX0 + 0.001 * k, decode) is not None for k in range(300)]
+    assert taken == [True] * 100 + [False] * 200
+    assert decode.calls == 101  # the rest were refused before decoding
+    assert all(gate.take(good, RX0 + 0.3, decode) for _ in range(50))  # another name keeps its own count
+    assert gate.over_cap == {"flood-bot": 200} and gate.refused == 200
+    assert gate.take(flood, RX0 + WINDOW_S + 0.001, decode)  # a new window
     batch = b"[" + b",".join(message("batch-bot", k, 0.0) for k in range(64)) + b"]"
-    assert gate.admit(batch, RX0 + 1.5) and not gate.admit(batch, RX0 + 1.6)  # 64, then 128 > 100
-    assert gate.over_cap[b"batch-bot"] == 64  # every message of the refused batch
+    assert gate.take(batch, RX0 + 1.5, decode) and not gate.take(batch, RX0 + 1.6, decode)  # 64, then 128 > 100
+    assert not gate.take(batch, RX0 + 1.7, decode)  # refused before decoding now
+    assert gate.over_cap["batch-bot"] == 128  # every message of the refused batches
+    garbage = b"not json"
+    assert [gate.take(garbage, RX0 + 1.8, decode) is not None for _ in range(102)] == [True] * 100 + [False] * 2
+    assert gate.over_cap[""] == 2  # counted under no name, and bounded by the same cap
 
 
 def test_counted_names_are_bounded():
     gate = Gate(max_rate=1.0)
     for k in range(MAX_COUNTED_NAMES + 10):
         name = f"n{k}"
-        gate.admit(message(name, 0, 0.0), RX0)
-        gate.admit(message(name, 1, 0.0), RX0)  # over the cap of 1 per window
-    assert len(gate.over_cap) == MAX_COUNTED_NAMES + 1 and gate.over_cap[OTHER_NAMES] == 10
+        gate.take(message(name, 0, 0.0), RX0, decode_keeping_raw)
+        gate.take(message(name, 1, 0.0), RX0, decode_keeping_raw)  # over the cap of 1 per window
+    assert len(gate.over_cap) == MAX_COUNTED_NAMES + 1 and gate.over_cap[OTHER_ROBOTS] == 10
 
 
 def test_allowed_networks():
@@ -65,9 +83,9 @@ def test_allowed_networks():
 
 def ingest_through(hub: Hub, gate: Gate, data: bytes, rx: float) -> None:
     """What a transport does with one datagram."""
-    if gate.admit(data, rx):
-        samples, failures, raws = decode_keeping_raw(data)
-        hub.ingest(samples, failures, rx, "test", raws=raws)
+    decoded = gate.take(data, rx, decode_keeping_raw)
+    if decoded is not None:
+        hub.ingest(*decoded[:2], rx, "test", raws=decoded[2])
 
 
 def test_the_hub_counts_and_names_a_robot_over_the_cap(practice_profile, caplog):
@@ -80,6 +98,8 @@ def test_the_hub_counts_and_names_a_robot_over_the_cap(practice_profile, caplog)
                 ingest_through(hub, gate, message("practice-bot", k // 10, 0.01 * k), rx)
             ingest_through(hub, gate, message("flood-bot", k, 0.001 * k), rx)
             hub.process(rx)
+            if k % 100 == 99:
+                hub.check(rx)  # as the pump does, once a second
     snap = hub.snapshot(RX0 + 0.4)
     assert snap["practice-bot"].messages == 40 and not snap["practice-bot"].errors
     assert snap["flood-bot"].messages == 50 and snap["flood-bot"].errors == {"over_rate_cap": 350}
@@ -129,6 +149,30 @@ def test_idle_robots_without_a_profile_free_their_slots(practice_profile, caplog
     assert sum("slot freed after its silence" in line for line in lines) == 63  # their counts stay
     one(hub, "invented-000", 1, later + 1.0)  # back: its counts go on
     assert hub.snapshot(later + 1.0)["invented-000"].messages == 2
+
+
+def test_robots_without_a_profile_share_their_rows(practice_profile):
+    hub = Hub({practice_profile.name: practice_profile})
+    one(hub, "visitor-0", 0, RX0)
+    assert hub.sessions["visitor-0"].ring.max_rows == hub_module.UNPROFILED_ROWS  # alone: the whole share
+    for k in range(1, 10):
+        one(hub, f"visitor-{k}", 0, RX0)
+    rows = {name: session.ring.max_rows for name, session in hub.sessions.items()}
+    assert rows.pop("practice-bot") == hub.max_rows  # the user's own robot keeps its cap
+    assert set(rows.values()) == {hub_module.UNPROFILED_ROWS // 10}
+
+
+def test_raw_samples_for_the_checks_are_shared_out_too(practice_profile):
+    raw = RawHistory(max_rows=100_000, total_rows=100_000)
+    hub = Hub({}, max_robots=1000)
+    hub.add_listener(raw)
+    one(hub, "a-bot", 0, RX0)
+    one(hub, "b-bot", 0, RX0)
+    assert {r.ring.max_rows for r in raw._robots.values()} == {50_000}
+    for k in range(200):
+        one(hub, f"c-{k}", 0, RX0)
+    assert {r.ring.max_rows for r in raw._robots.values()} == {SMALL_BLOCK_ROWS}  # many robots: a block each
+    assert len(raw._robots) == DEFAULT_RAW_MAX_ROBOTS  # and no more of them than this
 
 
 def test_the_queue_to_processing_is_bounded(monkeypatch):

@@ -240,7 +240,7 @@ class MqttLink:
             self._note()
 
     async def _receive(self, client: aiomqtt.Client) -> None:
-        ingest, admit, has_room = self.hub.ingest, self.gate.admit, self.hub.has_room
+        ingest, take, has_room = self.hub.ingest, self.gate.take, self.hub.has_room
         async for message in client.messages:
             if not has_room():
                 self._count_dropped()
@@ -252,10 +252,10 @@ class MqttLink:
                 payload = payload.encode()
             elif not isinstance(payload, (bytes, bytearray)):
                 payload = b""
-            payload = bytes(payload)
-            if not admit(payload, rx):
-                continue  # over its robot's rate cap: counted by the gate, never decoded
-            samples, failures, raws = decode_keeping_raw(payload)
+            decoded = take(bytes(payload), rx, decode_keeping_raw)
+            if decoded is None:
+                continue  # its robot is over the rate cap: counted by the gate
+            samples, failures, raws = decoded
             ingest(samples, failures, rx, SOURCE, raws=raws)
 
     async def _forward(self, client: aiomqtt.Client) -> None:

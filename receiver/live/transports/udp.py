@@ -141,8 +141,11 @@ class UdpReceiver:
         """Wait for a datagram, then decode and queue it and those already
         waiting behind it (up to a pass's worth)."""
         recv, recvfrom, ingest, clock = self.sock.recv, self.sock.recvfrom, self.hub.ingest, time.time
-        admit = self.gate.admit
-        allowed = self.gate.source_allowed if self.gate.allow else None  # recvfrom only when needed
+        gate = self.gate
+        allowed = gate.source_allowed if gate.allow else None  # recvfrom only when needed
+        # Gate.take inline, with the window read once a pass: a method call and its
+        # attribute lookups per datagram cost more than the check itself.
+        (counts, capped), cap = gate.window(clock()), gate.per_window
         flags = 0  # the first receive waits
         taken = 0
         while taken < MAX_DATAGRAMS_PER_PASS:
@@ -166,9 +169,16 @@ class UdpReceiver:
             taken += 1
             if allowed is not None and not allowed(source[0]):
                 continue
-            if not admit(data, rx):
-                continue  # over its robot's rate cap: counted by the gate, never decoded
+            if capped and gate.refused_early(data, capped):
+                continue  # its robot is over the rate cap: counted by the gate, not decoded
             samples, failures, raws = decode_keeping_raw(data)
+            robot = samples[0].robot if samples else ""
+            n = len(samples) + len(failures)
+            count = counts.get(robot, 0) + n
+            counts[robot] = count
+            if count > cap:
+                gate.went_over(robot, n, capped)
+                continue
             ingest(samples, failures, rx, SOURCE, wake=False, raws=raws)
         self.datagrams += taken
         return taken

@@ -125,7 +125,7 @@ class WebSocketReceiver:
             self.connections -= 1
 
     async def _receive(self, connection: ServerConnection) -> None:
-        ingest, admit, has_room = self.hub.ingest, self.gate.admit, self.hub.has_room
+        ingest, take, has_room = self.hub.ingest, self.gate.take, self.hub.has_room
         while True:
             if not has_room():
                 self.held_back += 1
@@ -133,7 +133,8 @@ class WebSocketReceiver:
                     await asyncio.sleep(BACKPRESSURE_POLL_S)
             data = await connection.recv(decode=False)
             rx = time.time()
-            if not admit(data, rx):
-                continue  # over its robot's rate cap: counted by the gate, never decoded
-            samples, failures, raws = decode_keeping_raw(data)
+            decoded = take(data, rx, decode_keeping_raw)
+            if decoded is None:
+                continue  # its robot is over the rate cap: counted by the gate
+            samples, failures, raws = decoded
             ingest(samples, failures, rx, SOURCE, raws=raws)
