@@ -40,8 +40,8 @@ _NAME = re.compile(rb'"robot"\s*:\s*"([^"\\]{1,32})"')
 MAX_COUNTED_NAMES = 1024
 OTHER_NAMES = b""  # the name of a datagram with no readable robot name
 OTHER_ROBOTS = "(other robots)"  # the entry for names past MAX_COUNTED_NAMES
-_search = _NAME.search
-_BATCH = ord("[")  # a datagram that starts with this is a batch
+_search = search_name = _NAME.search  # search_name(data)[1] is the name, for a loop that inlines robot_name
+_BATCH = BATCH = ord("[")  # a datagram that starts with this is a batch
 
 Network = ipaddress.IPv4Network | ipaddress.IPv6Network
 

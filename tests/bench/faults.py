@@ -111,7 +111,8 @@ class Serve:
                 return
             if not line and self.proc.poll() is not None:
                 break
-        raise RuntimeError(f"serve did not start: {self.out}{self.proc.stderr.read()}")
+        self.err += self.proc.stderr.read()
+        raise RuntimeError(f"serve did not start: {self.out}{self.err}")
 
     def peak_rss_mb(self) -> float:
         with open(f"/proc/{self.proc.pid}/status") as status:
@@ -280,16 +281,16 @@ def disk_full(args) -> None:
 
 
 def sigkill(args) -> None:
-    print("a robot at 1 kHz for 3 s, then SIGKILL: messages sent more than the flush interval before the kill "
-          "that are not in the recording")
+    print("a robot at 1 kHz for 3 s and a bit (0, 0.05, 0.1 ... s more), then SIGKILL: the messages lost, and those "
+          "sent more than the flush interval before the kill that are not in the recording")
     for label, tree in trees(args).items():
-        for _ in range(args.repeat):
+        for k in range(args.repeat):
             with tempfile.TemporaryDirectory() as tmp:
                 port = free_port()
                 path = Path(tmp) / "session.jsonl"
                 serve = Serve(tree, ["--udp", f"127.0.0.1:{port}", "--no-dashboard", "--record", str(path)], Path(tmp))
                 serve.wait_listening()
-                sent = pace_udp(("127.0.0.1", port), "practice-bot", 1000.0, 3.0)
+                sent = pace_udp(("127.0.0.1", port), "practice-bot", 1000.0, 3.0 + 0.05 * k)
                 serve.proc.kill()
                 serve.proc.wait()
                 seqs = recorded(path).get("practice-bot", [])
@@ -311,7 +312,6 @@ def existing(args) -> None:
                 code = serve.stop()
             except RuntimeError:
                 code = serve.proc.wait()
-                serve.err += serve.proc.stderr.read()
             say_result(label, bytes_before=before, bytes_after=path.stat().st_size, exit=code,
                        said=(serve.err.strip().splitlines() or [""])[-1][:100])
 
@@ -349,8 +349,9 @@ def mqtt_outage(args) -> None:
             mosquitto.terminate()
             mosquitto.wait()
             say_result(label, sent=sent, taken=serve.robot_messages("practice-bot"), exit=code)
-            for line in serve.err.splitlines():
-                print(f"{'':>26}{line}")
+            for line in serve.err.splitlines() + serve.out.splitlines():
+                if "mqtt" in line.lower() or "practice-bot:" in line:
+                    print(f"{'':>26}{line}")
 
 
 # A robot publishing at 200 Hz for 12 s with paho at QoS 0, reconnecting by itself; prints how many it published.

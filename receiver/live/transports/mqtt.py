@@ -36,7 +36,7 @@ DEFAULT_PREFIX = MQTT_PREFIX
 DEFAULT_MQTT_PORT = 1883  # IANA port for MQTT
 FORWARD_INTERVAL_S = 0.05
 RECONNECT_DELAY_S = 0.25  # the first pause after the broker is lost; it doubles up to the next
-MAX_RECONNECT_DELAY_S = 4.0
+MAX_RECONNECT_DELAY_S = 1.0  # a broker on the team laptop is back within a second; retries are cheap
 # Incoming messages aiomqtt holds for us: a few seconds of a busy robot, at
 # most 64 MB even if every one were of the largest size.
 MQTT_QUEUE = 1000

@@ -29,6 +29,7 @@ import threading
 import time
 
 from receiver.formats.protocol import MAX_MESSAGE_BYTES, decode_keeping_raw
+from receiver.live.gate import BATCH, OTHER_NAMES, messages_in, search_name
 from receiver.live.hub import Hub
 from receiver.live.supervise import Supervisor
 
@@ -146,6 +147,7 @@ class UdpReceiver:
         # Gate.take inline, with the window read once a pass: a method call and its
         # attribute lookups per datagram cost more than the check itself.
         (counts, capped), cap = gate.window(clock()), gate.per_window
+        search, early = search_name, {}  # early: messages refused before decoding, by name, this pass
         flags = 0  # the first receive waits
         taken = 0
         while taken < MAX_DATAGRAMS_PER_PASS:
@@ -169,8 +171,12 @@ class UdpReceiver:
             taken += 1
             if allowed is not None and not allowed(source[0]):
                 continue
-            if capped and gate.refused_early(data, capped):
-                continue  # its robot is over the rate cap: counted by the gate, not decoded
+            if capped:  # Gate.refused_early, inline: under a flood this is most of the loop's work
+                found = search(data)
+                name = OTHER_NAMES if found is None else found[1]
+                if name in capped:
+                    early[name] = early.get(name, 0) + (messages_in(data) if data and data[0] == BATCH else 1)
+                    continue  # its robot is over the rate cap: not decoded
             samples, failures, raws = decode_keeping_raw(data)
             robot = samples[0].robot if samples else ""
             n = len(samples) + len(failures)
@@ -180,6 +186,8 @@ class UdpReceiver:
                 gate.went_over(robot, n, capped)
                 continue
             ingest(samples, failures, rx, SOURCE, wake=False, raws=raws)
+        for name, n in early.items():
+            gate.refuse(name.decode("utf-8", "replace"), n)
         self.datagrams += taken
         return taken
 
