@@ -41,6 +41,7 @@ MAX_RECONNECT_DELAY_S = 1.0  # a broker on the team laptop is back within a seco
 # most 64 MB even if every one were of the largest size.
 MQTT_QUEUE = 1000
 BACKPRESSURE_POLL_S = 0.005
+FORWARD_BACKLOG = 20_000  # messages per robot waiting to be forwarded; past it (a slow broker) they are not
 SOURCE = "mqtt"
 log = logging.getLogger("podwatch.mqtt")
 
@@ -113,6 +114,7 @@ class MqttLink:
         self.outages = 0
         self.down_s = 0.0  # time without the broker, over every outage that ended
         self.dropped = 0  # messages dropped because the receiver was behind (MQTT_QUEUE full)
+        self.unforwarded = 0  # messages not forwarded: no broker, or it was too slow
         self._down_since: float | None = None
         self._incoming: _CountingQueue | None = None
         self._loop: asyncio.AbstractEventLoop | None = None
@@ -142,8 +144,15 @@ class MqttLink:
         self._loop.call_soon_threadsafe(self._queue, encoded, updates)
 
     def _queue(self, encoded: list[tuple[str, bytes]], updates: dict[str, PoseMessage]) -> None:
+        if not self.connected.is_set():  # no broker to forward to: not kept, so it cannot pile up
+            self.unforwarded += len(encoded)
+            return
         for robot, item in encoded:
-            self._samples[robot].append(item)
+            waiting = self._samples[robot]
+            if len(waiting) < FORWARD_BACKLOG:
+                waiting.append(item)
+            else:
+                self.unforwarded += 1
         self._poses.update(updates)
 
     @property
@@ -185,7 +194,8 @@ class MqttLink:
         self.hub.health.set_problem("mqtt", f"MQTT broker {self.where} {what} ({reason(exc)}): retrying")
 
     def _back(self) -> None:
-        """The broker answers again: log the outage's length, keep it in the link notes."""
+        """The broker answers again: log the outage's length, keep it in the link notes (with
+        what was not forwarded meanwhile)."""
         if self._down_since is None:
             return
         length = time.monotonic() - self._down_since
@@ -205,6 +215,8 @@ class MqttLink:
                          "the broker (messages sent meanwhile were lost)")
         if self.dropped:
             parts.append(f"{self.dropped:,} messages dropped while the receiver was behind")
+        if self.unforwarded:
+            parts.append(f"{self.unforwarded:,} messages not forwarded")
         self.hub.health.set_note("mqtt", f"mqtt {self.where}: " + "; ".join(parts) if parts else None)
 
     async def _session(self) -> None:
@@ -216,15 +228,21 @@ class MqttLink:
             self.connected.set()
             self._back()
             log.info("MQTT: subscribed to %s on %s:%d", samples_topic(self.prefix, "+"), self.host, self.port)
-            forwarding = asyncio.create_task(self._forward(client)) if self.forward else None
+            tasks = [asyncio.create_task(self._receive(client))]
+            if self.forward:
+                tasks.append(asyncio.create_task(self._forward(client)))
             try:
-                await self._receive(client)
+                # The first of them to fail ends the session, with its error: forwarding
+                # must not stop quietly while receiving goes on.
+                done, _ = await asyncio.wait(tasks, return_when=asyncio.FIRST_EXCEPTION)
+                for task in done:
+                    task.result()
             finally:
                 self._count_dropped()
-                if forwarding is not None:
-                    forwarding.cancel()
-                    # Wait for it to end, so that no task is left pending when the loop stops.
-                    await asyncio.gather(forwarding, return_exceptions=True)
+                for task in tasks:
+                    task.cancel()
+                # Wait for them to end, so that no task is left pending when the loop stops.
+                await asyncio.gather(*tasks, return_exceptions=True)
 
     def _new_queue(self, maxsize: int) -> _CountingQueue:
         """aiomqtt's incoming queue for one connection, kept to read its count of drops."""

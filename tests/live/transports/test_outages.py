@@ -112,3 +112,12 @@ def test_nothing_there_is_one_line(practice_profile):
                        (f"mqtt://127.0.0.1:{port}", "no MQTT broker answers at")):
         with pytest.raises(LinkError, match=rf"^{words} {url} \(Connection refused\)"):
             asyncio.run(send_paced(run.samples, np.asarray(run.arrival_s), url))
+
+
+def test_a_forwarding_receiver_keeps_nothing_for_a_broker_that_is_away():
+    from receiver.live.hub import Hub
+    from receiver.live.transports.mqtt import MqttLink
+
+    link = MqttLink(Hub({}), "mqtt://127.0.0.1:1", forward=True)
+    link._queue([("practice-bot", b"{}")] * 10, {})  # what the pump hands over while no broker answers
+    assert link.unforwarded == 10 and not link._samples
