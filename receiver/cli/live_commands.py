@@ -121,9 +121,9 @@ class _PageServer:
         except UsageError as exc:
             if isinstance(exc.__cause__, OSError) and exc.__cause__.errno == errno.EADDRINUSE:
                 host, port = parse_host_port(self.args.dashboard or f":{DEFAULT_PORT}", DEFAULT_HOST)
-                raise UsageError(f"cannot serve the page on {host}:{port}: port {port} is in use (another podwatch "
-                                 "running?): stop that program, or choose another port with --dashboard HOST:PORT"
-                                 ) from exc.__cause__
+                raise UsageError(f"cannot serve the dashboard on {host}:{port}: port {port} is in use (another "
+                                 "podwatch running?): stop that program, or choose another port with --dashboard "
+                                 "HOST:PORT") from exc.__cause__
             raise
 
     def start_replay(self, source) -> None:

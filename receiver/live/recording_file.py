@@ -44,7 +44,8 @@ def space_warning(folder: Path, robots: int, compress: bool) -> str | None:
     need = hour_bytes(robots, compress)
     if free >= need:
         return None
-    how = f"{max(robots, 1)} robot{'s' if robots > 1 else ''} at {ROBOT_RATE_HZ:g} messages/s of about {LINE_BYTES} bytes"
+    how = f"{max(robots, 1)} robot{'s' if robots > 1 else ''} at {ROBOT_RATE_HZ:g} messages/s"
+    how += f" of about {LINE_BYTES} bytes"
     if compress:
         how += f", gzip to about {GZIP_SHARE:.0%}"
     return (

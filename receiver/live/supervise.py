@@ -14,7 +14,6 @@ never decides what a worker does.
 
 from __future__ import annotations
 
-import asyncio
 import logging
 import os
 import re
@@ -125,6 +124,8 @@ class Supervisor:
     async def run_task(self, name: str, body: Callable[[], Awaitable[None]]) -> None:
         """Await ``body()`` until it returns or the task is cancelled, restarting it after a
         failure: the coroutine of a worker task."""
+        import asyncio  # here: the command line's parser reaches this module, and asyncio costs it 13 ms
+
         while True:
             try:
                 await body()

@@ -178,8 +178,9 @@ def flood(args) -> None:
             code = serve.stop()
             got = serve.robot_messages("practice-bot") or 0
             lost = sent["practice-bot"] - got
-            say_result(label, good_sent=sent["practice-bot"], good_lost=f"{lost} ({100 * lost / sent['practice-bot']:.1f} %)",
-                       flood_sent=sent["flood-bot"], flood_taken=serve.robot_messages("flood-bot"), exit=code)
+            share = f"{lost} ({100 * lost / sent['practice-bot']:.1f} %)"
+            say_result(label, good_sent=sent["practice-bot"], good_lost=share, flood_sent=sent["flood-bot"],
+                       flood_taken=serve.robot_messages("flood-bot"), exit=code)
             for line in serve.out.splitlines()[-6:]:
                 print(f"{'':>26}{line}")
 

@@ -38,7 +38,8 @@ def test_a_refused_token_says_to_pass_one(command, tmp_path):
     with live_receiver(ServeConfig({}, ws=("127.0.0.1", 0), token="s3cret")) as receiver:
         url = "ws://%s:%d" % receiver.ws.address
         error_line(sends(command, url), tmp_path, f"the receiver at {url} refused the token: pass --token")
-        error_line(sends(command, url, "--token", "guess"), tmp_path, "refused the token: pass the receiver's own --token")
+        error_line(sends(command, url, "--token", "guess"), tmp_path,
+                   "refused the token: pass the receiver's own --token")
 
 
 @pytest.mark.parametrize("command", ["simulate", "replay"])
