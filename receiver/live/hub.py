@@ -296,6 +296,25 @@ class Hub:
             self._share_rows()
         return bool(idle)
 
+    def adopt_profile(self, profile: Profile) -> bool:
+        """Recompute ``profile.name`` with ``profile`` from its next sample on, unless a profile
+        was given for it here (a local one wins); True when it was adopted. The robot's link
+        counts carry on; rows received before it, without a recompute, are let go."""
+        robot = profile.name
+        with self._state_lock:
+            if robot in self.profiles:
+                return False
+            old = self.sessions.get(robot)
+            if old is None and len(self.sessions) >= self.max_robots:
+                return False
+            self.profiles[robot] = profile
+            session = self.sessions[robot] = self._new_session(robot, profile)
+            if old is not None:
+                session.stats = old.stats
+                session.state = old.state
+            self._share_rows()
+            return True
+
     def _share_rows(self) -> None:
         """Give each robot without a profile its share of UNPROFILED_ROWS (a small block's
         worth at least, this hub's max_rows at most)."""

@@ -11,9 +11,14 @@ logged and shown in the link health. With forwarding on,
 every valid sample that reached the hub over UDP or WebSocket is republished
 as received (a team's own fields included) in batches (JSON arrays of at
 most 256 messages and 64 KiB, one per robot per interval) together with
-each robot's latest recomputed pose on <prefix>/<robot>/pose. It never
-re-forwards what came from MQTT, and subscribes with MQTT 5 "no local" so
-its own publications never come back to it.
+each robot's latest recomputed pose on <prefix>/<robot>/pose, and each
+robot's profile given with --profile, retained, on <prefix>/<robot>/profile
+(published on every connect). Every link takes the profiles retained there
+for robots it has no profile of, so a second laptop watching through the
+broker recomputes too; a local --profile wins, and a different one on the
+broker is logged once. It never re-forwards what came from MQTT, and
+subscribes with MQTT 5 "no local" so its own publications never come back
+to it.
 """
 
 from __future__ import annotations
@@ -28,6 +33,8 @@ import aiomqtt
 import msgspec
 from paho.mqtt.subscribeoptions import SubscribeOptions
 
+from receiver.errors import ProfileError
+from receiver.formats.profile_toml import profile_from_json, profile_json
 from receiver.formats.protocol import MAX_BATCH, MAX_MESSAGE_BYTES, MQTT_PREFIX, PoseMessage, Sample, decode_keeping_raw
 from receiver.live.hub import Hub
 from receiver.live.supervise import reason
@@ -71,6 +78,11 @@ def parse_mqtt_url(url: str) -> tuple[str, int]:
 def samples_topic(prefix: str, robot: str) -> str:
     """The topic a robot's samples arrive on: <prefix>/<robot>/samples (robot "+" for all)."""
     return f"{prefix}/{robot}/samples"
+
+
+def profile_topic(prefix: str, robot: str) -> str:
+    """The topic a robot's profile is kept on, retained: <prefix>/<robot>/profile (robot "+" for all)."""
+    return f"{prefix}/{robot}/profile"
 
 
 def pose_topic(prefix: str, robot: str) -> str:
@@ -121,6 +133,8 @@ class MqttLink:
         self._samples: dict[str, list[bytes]] = defaultdict(list)
         self._poses: dict[str, PoseMessage] = {}
         self._encoder = msgspec.json.Encoder()
+        self._own_profiles = dict(hub.profiles)  # given here with --profile: what a forwarder publishes
+        self._profile_said: set[tuple[str, bytes]] = set()  # (robot, payload) already logged
         if forward:
             hub.add_listener(self._on_processed, with_raws=True)
 
@@ -225,6 +239,10 @@ class MqttLink:
             queue_type=self._new_queue, max_queued_incoming_messages=MQTT_QUEUE,
         ) as client:
             await client.subscribe(samples_topic(self.prefix, "+"), options=SubscribeOptions(qos=0, noLocal=True))
+            await client.subscribe(profile_topic(self.prefix, "+"), options=SubscribeOptions(qos=1, noLocal=True))
+            if self.forward:
+                for robot, profile in self._own_profiles.items():
+                    await client.publish(profile_topic(self.prefix, robot), profile_json(profile), qos=1, retain=True)
             self.connected.set()
             self._back()
             log.info("MQTT: subscribed to %s on %s:%d", samples_topic(self.prefix, "+"), self.host, self.port)
@@ -270,11 +288,37 @@ class MqttLink:
                 payload = payload.encode()
             elif not isinstance(payload, (bytes, bytearray)):
                 payload = b""
+            if str(message.topic).endswith("/profile"):
+                self._take_profile(str(message.topic), bytes(payload))
+                continue
             decoded = take(bytes(payload), rx, decode_keeping_raw)
             if decoded is None:
                 continue  # its robot is over the rate cap: counted by the gate
             samples, failures, raws = decoded
             ingest(samples, failures, rx, SOURCE, raws=raws)
+
+    def _take_profile(self, topic: str, payload: bytes) -> None:
+        """A profile retained on the broker: adopted for a robot without one here, else compared
+        with the local one; anything wrong with it is logged once, never raised."""
+        robot = topic[len(self.prefix) + 1 : -len("/profile")]
+        if not payload or (robot, payload) in self._profile_said:
+            return  # an empty retained message clears the topic; a repeat was said already
+        self._profile_said.add((robot, payload))
+        try:
+            profile = profile_from_json(payload, f"mqtt {topic}")
+        except ProfileError as exc:
+            log.warning("MQTT: ignored the profile on %s: %s", topic, exc)
+            return
+        if profile.name != robot:
+            log.warning("MQTT: ignored the profile on %s: it is named %r", topic, profile.name)
+            return
+        local = self.hub.profiles.get(robot)
+        if local is None:
+            if self.hub.adopt_profile(profile):
+                log.warning("MQTT: recomputing %s with the profile from %s", robot, topic)
+        elif local != profile:
+            log.warning("MQTT: the profile on %s differs from the one given here for %s; using the local one",
+                        topic, robot)
 
     async def _forward(self, client: aiomqtt.Client) -> None:
         while True:
