@@ -55,6 +55,8 @@ class Refresh:
     unit: str = NO_PROFILE_UNIT
     now: float = math.nan
     unattributed: dict[str, int] = field(default_factory=dict)  # refused messages no robot could be named for
+    problems: list[str] = field(default_factory=list)  # the receiver's own: a worker down, recording stopped
+    notes: list[str] = field(default_factory=list)  # the receiver's links: buffer, kernel drops, outages
     cursor: dict = field(default_factory=dict)
 
 
@@ -65,9 +67,13 @@ def _unit(shown: TabView, robot: str | None) -> tuple[str, float | None]:
     return profile.distance_unit, METRES_PER_UNIT[profile.distance_unit]
 
 
-def status_line(snap: RobotSnapshot | None, now: float, source_label: str, unheard: Sequence[str] = ()) -> str:
-    """One line on the selected robot's link, e.g. "practice-bot: no data for 4 s"; ``unheard``
-    names the profiles given for robots that sent nothing (``unheard_profiles``)."""
+def status_line(snap: RobotSnapshot | None, now: float, source_label: str, problems: Sequence[str] = (),
+                unheard: Sequence[str] = ()) -> str:
+    """One line on the selected robot's link, e.g. "practice-bot: no data for 4 s", after
+    the receiver's own ``problems`` (e.g. "recording stopped: No space left on device");
+    ``unheard`` names the profiles given for robots that sent nothing (``unheard_profiles``)."""
+    if problems:
+        source_label = f"{source_label} \u00b7 {'; '.join(problems)}"
     if snap is None:
         return f"{source_label}: waiting for a robot"
     if snap.state is LinkState.WAITING:
@@ -96,8 +102,10 @@ def refresh(
     if robot not in snapshots:
         robot = robots[0] if robots else None
     unit, metres_per_unit = _unit(shown, robot)
-    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit,
-                  status=status_line(snapshots.get(robot), now, source.label, unheard_profiles(snapshots)), now=now)
+    problems = hub.health.problems()
+    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, now=now, problems=problems,
+                  notes=hub.health.notes(),
+                  status=status_line(snapshots.get(robot), now, source.label, problems, unheard_profiles(snapshots)))
     named = sum((Counter(snap.errors) for snap in snapshots.values()), Counter())
     out.unattributed = {
         str(reason): count - named[str(reason)] for reason, count in hub.errors.items() if count > named[str(reason)]

@@ -61,7 +61,10 @@ def session_of(view: TabView, robot: str | None, window_s: float) -> Session | s
     else:
         columns = view.columns(robot, since_rx=view.source.now() - window_s)
         recording = None
-        what = f"the live robot's last {window_s:g} s"
+        # What is held may be less than the window: a young session, or many fast robots
+        # sharing the raw history's rows (live/raw_history.py).
+        span = float(columns.rx[-1] - columns.rx[0]) if columns is not None and len(columns) > 1 else 0.0
+        what = f"the live robot's last {min(span, window_s):.0f} s"
     if columns is None or len(columns) < 2:
         return f"No samples from {robot} yet."
     return Session(robot, columns, loaded, recording, what)

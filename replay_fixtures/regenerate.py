@@ -75,6 +75,7 @@ def main() -> None:
         profile = load_profile(HERE / profile_file)
         run = simulate(profile, path, 100.0, seconds, 1, parse_faults(fault_specs, profile), **options)
         out = HERE / name
+        out.unlink(missing_ok=True)  # a recording is never overwritten in place: this is a fresh one
         with RecordingWriter(out, [header_profile(name, profile)], created=CREATED) as writer:
             writer.write(run.stamp_rx(WALL_START_S))
         print(f"{name}: {len(run.samples)} messages, {out.stat().st_size / 1024:.0f} KB")

@@ -14,6 +14,7 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
+import msgspec
 import tomli_w
 
 from receiver.errors import ProfileError, describe
@@ -213,3 +214,21 @@ def dump_profile(profile: Profile) -> str:
 def write_profile(profile: Profile, path: str | Path) -> None:
     """Write the profile as a TOML file."""
     Path(path).write_text(dump_profile(profile), encoding="utf-8")
+
+
+def profile_json(profile: Profile) -> bytes:
+    """The profile as one JSON object (``profile_to_table``): what <prefix>/<robot>/profile carries."""
+    return msgspec.json.encode(profile_to_table(profile))
+
+
+def profile_from_json(data: bytes, source: str) -> Profile:
+    """A profile from ``profile_json``'s bytes, validated as a file is; one ProfileError otherwise."""
+    if len(data) > MAX_PROFILE_BYTES:
+        raise ProfileError(source, "(message)", f"over {MAX_PROFILE_BYTES} bytes: a profile is a few hundred")
+    try:
+        table = msgspec.json.decode(data)
+    except (msgspec.MsgspecError, RecursionError) as exc:
+        raise ProfileError(source, "(message)", f"not a JSON profile: {str(exc).splitlines()[0] if str(exc) else exc}") from None
+    if not isinstance(table, dict):
+        raise ProfileError(source, "(message)", f"expected a JSON object, got {describe(table)}")
+    return profile_from_table(table, source)

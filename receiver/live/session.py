@@ -17,8 +17,8 @@ from typing import Sequence
 
 import numpy as np
 
-from receiver.formats.protocol import PoseMessage, Sample
-from receiver.live.ring_buffer import Cut, PendingRows, RingBuffer
+from receiver.formats.protocol import PoseMessage, Reason, Sample
+from receiver.live.ring_buffer import BLOCK_ROWS, SMALL_BLOCK_ROWS, Cut, PendingRows, RingBuffer
 from receiver.odometry.columns import Columns, columns_from_samples
 from receiver.odometry.counts import ACCEPTED, SEQ_MODULUS, SampleKind, classify
 from receiver.odometry.recompute import Result, Tracker, loop_periods
@@ -145,7 +145,9 @@ class Session:
         self.n_wheels: int | None = len(profile.wheels) if profile is not None else None
         self.state = LinkState.WAITING
         self.stats = LinkStats()
-        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows)
+        # a robot without a profile shares its rows with others (Hub): small blocks
+        block_rows = BLOCK_ROWS if profile is not None else SMALL_BLOCK_ROWS
+        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows, block_rows=block_rows)
         self._last: tuple[int, float] | None = None  # last accepted (seq, t)
         self._last_rx = np.nan
         self._jitter_s: float | None = None
@@ -368,14 +370,28 @@ def unheard_profiles(snapshots: dict[str, RobotSnapshot]) -> list[str]:
     return [name for name, snap in snapshots.items() if snap.has_profile and snap.messages == 0]
 
 
+def summary_of_stats(robot: str, stats: LinkStats) -> str:
+    """The summary line of a robot whose slot was freed: its link counts only."""
+    capped = stats.errors.get(Reason.OVER_RATE_CAP, 0)
+    errors = sum(stats.errors.values()) - capped
+    return (
+        f"{robot}: {stats.messages} messages, {stats.gaps} gaps, {stats.duplicates} duplicates, {stats.late} late, "
+        f"{errors} decode errors{f', {capped} over the rate cap' if capped else ''}; no profile, slot freed after "
+        "its silence"
+    )
+
+
 def summary_line(snap: RobotSnapshot, unit: str | None, unheard: Sequence[str] = ()) -> str:
     """One line per robot for the end of ``serve`` and ``replay``; ``unheard`` names the
     profiles given for robots that sent nothing (see ``unheard_profiles``)."""
-    errors = sum(snap.errors.values())
+    capped = snap.errors.get(Reason.OVER_RATE_CAP, 0)
+    errors = sum(snap.errors.values()) - capped
     text = (
         f"{snap.robot}: {snap.messages} messages, {snap.gaps} gaps, {snap.duplicates} duplicates, "
         f"{snap.late} late, {errors} decode errors"
     )
+    if capped:
+        text += f", {capped} over the rate cap"
     if not snap.has_profile:
         if unheard:
             return text + f"; no profile, not recomputed: {missing_profile_hint(snap.robot, unheard)}"

@@ -170,7 +170,7 @@ def test_edits_belong_to_the_tab_that_made_them(practice_profile):
     other = call(app, f"{ids.EDITOR_TRACK}.figure", redraw_values("tab-b", None), [f"{ids.EDITOR}.data"])
     assert "--set wheel.right.reversed=true" in mine[ids.EDITOR_OPTIONS]["children"]
     assert other[ids.EDITOR_OPTIONS]["children"].startswith("no changes")
-    assert "live robot's last 60 s" in other[ids.EDITOR_WHAT]["children"]
+    assert "live robot's last 10 s" in other[ids.EDITOR_WHAT]["children"]
     assert hub.profiles["practice-bot"] == practice_profile
     # Following live, a tick comes back to a redraw as dear as a tenth of the time since the last: skipped.
     cursor = mine[ids.EDITOR_CURSOR]["data"]

@@ -162,7 +162,7 @@ def test_a_robot_without_a_profile_is_told_the_name_to_set():
         )
 
     snapshots = {"practice-bot": snap("practice-bot", True, 0), "my-robot": snap("my-robot", False, 40)}
-    line = view.status_line(snapshots["my-robot"], 2.0, "live", view.unheard_profiles(snapshots))
+    line = view.status_line(snapshots["my-robot"], 2.0, "live", unheard=view.unheard_profiles(snapshots))
     assert line.endswith(
         "; no profile for this robot (the profile given is named practice-bot; the messages come from my-robot: "
         'set name = "my-robot" in the profile, or send that name): not recomputed'
