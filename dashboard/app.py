@@ -17,7 +17,7 @@ from dash.exceptions import DependencyException
 from flask import request
 from werkzeug.exceptions import HTTPException
 
-from dashboard import callbacks, diagnosis_panel, layout, recording_opener
+from dashboard import callbacks, compare_panel, diagnosis_panel, editor_panel, layout, loop_cost_panel, recording_opener
 from dashboard.settings import Settings
 from dashboard.tabs import Station
 
@@ -28,7 +28,8 @@ LOGGED_MOST = 20  # distinct failures logged, each once: a client that repeats o
 
 def create_app(station: Station, settings: Settings = Settings()) -> Dash:
     """A new Dash app showing ``station``: the layout, the views' callbacks, the
-    diagnosis panels and the recording opener. Serve its ``.server`` (``server.start_dashboard`` does).
+    diagnosis panels, the recording opener and the workbench (editor, loop cost, compare).
+    Serve its ``.server`` (``server.start_dashboard`` does).
     """
     app = Dash(
         __name__,
@@ -42,6 +43,9 @@ def create_app(station: Station, settings: Settings = Settings()) -> Dash:
     callbacks.register(app, station, settings)
     diagnosis_panel.register(app, station, settings)
     recording_opener.register(app, station, settings)
+    editor_panel.register(app, station, settings)
+    loop_cost_panel.register(app, station, settings)
+    compare_panel.register(app, station, settings)
     app.server.register_error_handler(Exception, _answer_in_one_line(set()))
     return app
 

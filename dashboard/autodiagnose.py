@@ -15,12 +15,13 @@ from enum import Enum
 
 import numpy as np
 
+from receiver.analysis.diagnose import UNDECIDED
 from receiver.odometry.robot import inches
 
 # Back under this share of both thresholds, the next crossing asks again:
 # half, so that an error hovering at a threshold does not ask at every tick.
 REARM_SHARE = 0.5
-# While the answer is "not enough motion", ask again every this many ticks
+# While the answer names no explanation ("not enough motion", "undecided"), ask again every this many ticks
 # (the clip gains the motion the last one lacked).
 RETRY_TICKS = 2
 # An answer this many ticks late is taken as lost (the page dropped it): ask again.
@@ -32,7 +33,7 @@ class WatchState(Enum):
 
     ARMED = "armed"  # under the thresholds: the next crossing asks for a run
     ASKED = "asked"  # a run asked for, its answer not back yet
-    UNSURE = "unsure"  # answered "not enough motion": asks again while the disagreement stays up
+    UNSURE = "unsure"  # answered "not enough motion" or "undecided": asks again while the disagreement stays up
     DONE = "done"  # a verdict is on the page: quiet until the disagreement comes back down
 
 
@@ -42,7 +43,7 @@ class WatchEvent(Enum):
     PAST = "past"  # the disagreement passed a threshold
     DOWN = "down"  # back under REARM_SHARE of both thresholds
     SURE = "sure"  # the run answered with a verdict
-    UNSURE = "unsure"  # the run answered "not enough motion"
+    UNSURE = "unsure"  # the run answered "not enough motion" or "undecided"
     RETRY = "retry"  # RETRY_TICKS since an unsure answer, or STALL_TICKS since an unanswered ask
 
 
@@ -133,7 +134,7 @@ def step(watch: Watch, robot: str, key: str, tick: int, seen: Level, answer: dic
         watch = Watch(robot, key, asked=watch.asked)
     events = []
     if watch.state is WatchState.ASKED and answer and answer.get("n") == watch.asked:
-        events.append(WatchEvent.UNSURE if answer.get("confidence") == "not enough motion" else WatchEvent.SURE)
+        events.append(WatchEvent.UNSURE if answer.get("confidence") in UNDECIDED else WatchEvent.SURE)
     if seen.down:
         events.append(WatchEvent.DOWN)
     if seen.past:

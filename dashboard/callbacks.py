@@ -82,7 +82,7 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
             refreshed.cursor["slow_at"] = refreshed.now
             paint["html"][ids.STATUS] = refreshed.status.html()
             paint["html"][ids.LINK_TABLE] = readout_texts.link_table(
-                refreshed.snapshots, refreshed.now, robot, refreshed.unattributed
+                refreshed.snapshots, refreshed.now, robot, refreshed.unattributed, refreshed.problems + refreshed.notes
             )
         else:
             refreshed.cursor["slow_at"] = slow_at

@@ -18,11 +18,13 @@ from receiver.analysis.guided_check import INSTRUCTIONS, MOVES, GuidedResult
 from receiver.analysis.mistakes import profile_changes, verdict
 from receiver.analysis.wording import (
     CHECK_MARK,
+    after_fit,
     change_lines,
     clip_line,
     confidence_words,
     explanation_id,
     guided_outcome,
+    integration_words,
 )
 
 PAGE_HYPOTHESES = 4  # the panel's table: the leader and the few it was measured against
@@ -50,13 +52,13 @@ def diagnosis_view(diagnosis: Diagnosis, why: str) -> html.Div:
                      html.Div(explanation_id(ranked), className="hypothesis-id")]),
             # The CLI's table formats (cli/check_commands.py).
             html.Td(f"{ranked.position_rms:.3f} {unit}"), html.Td(f"{math.degrees(ranked.heading_rms):.2f} deg"),
-            html.Td(f"{ranked.score:.3f}"),
+            html.Td(f"{ranked.score:.3f}"), html.Td(after_fit(ranked)),
         ])
         for k, ranked in enumerate(diagnosis.ranking[:PAGE_HYPOTHESES], 1)
     ]
     table = html.Table(className="explanations", children=[
         html.Thead(html.Tr([html.Th(h) for h in ("#", "explanation (as a fault)", "position RMS", "heading RMS",
-                                                 f"score ({unit})")])),
+                                                 f"score ({unit})", f"after fit ({unit})")])),
         html.Tbody(rows),
     ])
     return html.Div(className="diagnosis", children=[
@@ -64,6 +66,7 @@ def diagnosis_view(diagnosis: Diagnosis, why: str) -> html.Div:
         html.Div(className="verdict", children=[html.Span("verdict: ", className="verdict-label"), diagnosis.verdict]),
         html.Div(className=_confidence_class(diagnosis.confidence),
                  children=f"confidence: {confidence_words(diagnosis)}"),
+        html.Div(f"integration: {integration_words(diagnosis)}", className="integration"),
         table,
         _changes(diagnosis.changes),
         *[html.Div(f"note: {note}", className="note") for note in diagnosis.notes],

@@ -17,14 +17,18 @@ from dash import Dash, Input, Output, State, ctx, dcc, html, no_update
 from dashboard import ids
 from dashboard.autodiagnose import REARM_SHARE, Thresholds, Watch, WatchState, level, step
 from dashboard.diagnosis_content import diagnosis_message, diagnosis_view, guided_intro, guided_view
+from dashboard.editor_state import profile_signature
 from dashboard.pacing import ASK_WHEN_ANSWERED, triggered_ids
 from dashboard.settings import Settings
 from dashboard.tabs import Station, TabView
-from receiver.analysis.diagnose import diagnose_recent, equivalence_classes
+from receiver.analysis.diagnose import Diagnosis, diagnose_recent, equivalence_classes
 from receiver.analysis.guided_check import guided_check
 from receiver.analysis.sample_clip import clip_from_columns
 from receiver.errors import PodwatchError
+from receiver.formats.profile_toml import profile_to_table
 from receiver.live.raw_history import DEFAULT_RAW_WINDOW_S
+from receiver.live.session import unheard_profiles
+from receiver.odometry.robot import missing_profile_hint
 
 CLIP_CHOICES_S = (5, 10, 20, 30, 60)
 TICK_MS = 500  # how often the watch looks at the disagreement, and a running guided check at the moves
@@ -48,6 +52,9 @@ def cards(settings: Settings) -> list[html.Section]:
         html.Div(id=ids.DIAGNOSE_RESULT, children=diagnosis_message(
             f"No diagnosis yet: it runs by itself when the disagreement passes {_limits_text(settings)}, "
             "or press Diagnose now.")),
+        # Its click is the profile editor's (editor_panel.py): the suggested profile as edits.
+        html.Button("Try this change in the profile editor", id=ids.DIAGNOSE_TRY, n_clicks=0, className="button hidden"),
+        dcc.Store(id=ids.DIAGNOSE_SUGGESTION, data=None),
         dcc.Interval(id=ids.DIAGNOSE_TICK, interval=TICK_MS, n_intervals=0),
         dcc.Store(id=ids.DIAGNOSE_WATCH, data=None),
         dcc.Store(id=ids.DIAGNOSE_ASK, data=None),
@@ -74,25 +81,40 @@ def cards(settings: Settings) -> list[html.Section]:
 
 def run_diagnosis(
     shown: TabView, robot: str | None, seconds: float, how: str, reason: str = ""
-) -> tuple[html.Div, str | None]:
-    """The panel's result for the robot's last ``seconds``, and the confidence (None when none ran).
+) -> tuple[html.Div, str | None, dict | None]:
+    """The panel's result for the robot's last ``seconds``, the confidence (None when none ran),
+    and the suggested profile for the editor (None when it suggests no change).
 
     ``how`` and ``reason`` open the result, around the source's name: "ran by itself (live): ...".
     """
     if not robot:
-        return diagnosis_message("No robot heard yet: nothing to diagnose."), None
+        return diagnosis_message("No robot heard yet: nothing to diagnose."), None, None
     profile = shown.profile(robot)
     if profile is None:
-        return diagnosis_message(f"{robot} has no profile (give one with --profile): nothing to diagnose."), None
-    cols = shown.columns(robot)
+        unheard = unheard_profiles(shown.source.hub.snapshot(shown.source.now(), loop_stats=False))
+        hint = missing_profile_hint(robot or "", unheard)
+        return diagnosis_message(f"{robot} has no profile ({hint}): nothing to diagnose."), None, None
+    # Twice the clip by receive time, not the whole raw history (600 s of a 1 kHz robot is 54 MB):
+    # diagnose_recent cuts the last seconds by the robot's clock.
+    latest = shown.latest_rx(robot)
+    cols = shown.columns(robot, since_rx=None if latest is None else latest - 2.0 * float(seconds) - 1.0)
     if cols is None or not len(cols):
-        return diagnosis_message(f"No samples from {robot} yet."), None
+        return diagnosis_message(f"No samples from {robot} yet."), None, None
     try:
         diagnosis = diagnose_recent(cols, profile, float(seconds), robot)
     except PodwatchError as exc:
-        return diagnosis_message(f"Cannot diagnose: {exc}"), None
+        return diagnosis_message(f"Cannot diagnose: {exc}"), None, None
     why = f"{how} ({shown.label})" + (f": {reason}" if reason else "")
-    return diagnosis_view(diagnosis, why), diagnosis.confidence
+    return diagnosis_view(diagnosis, why), diagnosis.confidence, suggestion(diagnosis, robot)
+
+
+def suggestion(diagnosis: Diagnosis, robot: str) -> dict | None:
+    """The diagnosis's suggested profile for the editor's store: the robot, which profile it
+    corrects (editor_state.profile_signature) and the corrected profile as a table."""
+    if diagnosis.corrected == diagnosis.profile:
+        return None
+    return {"robot": robot, "loaded": profile_signature(diagnosis.profile),
+            "corrected": profile_to_table(diagnosis.corrected)}
 
 
 def guided_panel(shown: TabView, run: dict) -> html.Div:
@@ -189,6 +211,8 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
     @app.callback(
         Output(ids.DIAGNOSE_RESULT, "children"),
         Output(ids.DIAGNOSE_ANSWER, "data"),
+        Output(ids.DIAGNOSE_SUGGESTION, "data"),
+        Output(ids.DIAGNOSE_TRY, "className"),
         Input(ids.DIAGNOSE_RUN, "n_clicks"),
         Input(ids.DIAGNOSE_ASK, "data"),
         State(ids.ROBOT, "value"),
@@ -202,12 +226,14 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         if asked and not ask:
             # The page calls this as it starts, with no ask in it (none has been made):
             # nothing to run, and the panel keeps what it says.
-            return no_update, no_update
+            return no_update, no_update, no_update, no_update
         robot = ask["robot"] if asked else robot
         how, reason = ("ran by itself", f"the disagreement passed {_limits_text(settings)}") if asked else ("ran on request", "")
-        result, confidence = run_diagnosis(station.tab(view_id), robot, seconds or settings.diagnose_s, how, reason)
+        result, confidence, suggested = run_diagnosis(station.tab(view_id), robot, seconds or settings.diagnose_s, how,
+                                                      reason)
         # Whatever triggered it, this run answers the latest ask: it saw the newest samples.
-        return result, {"n": (ask or {}).get("n"), "confidence": confidence}
+        return (result, {"n": (ask or {}).get("n"), "confidence": confidence}, suggested,
+                "button" if suggested else "button hidden")
 
     @app.callback(
         Output(ids.GUIDED_RUN, "data"),

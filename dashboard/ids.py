@@ -75,3 +75,43 @@ GUIDED_STEPS = "guided-steps"
 GUIDED_TICK = "guided-tick"
 GUIDED_REQUEST = "guided-request"
 GUIDED_CURSOR = "guided-cursor"
+
+# Profile editor (dashboard/editor_panel.py)
+EDITOR_OPEN = "editor-open"
+EDITOR_BODY = "editor-body"
+EDITOR = "editor-state"  # the tab's edits: the page's own store, never the server's
+EDITOR_FORM = "editor-form"
+EDITOR_FIELD = "editor-field"  # pattern-matching type: {"type": EDITOR_FIELD, "key": "wheel.0.x"}
+EDITOR_FORM_FOR = "editor-form-for"
+EDITOR_METHOD = "editor-method"
+EDITOR_UNDO = "editor-undo"
+EDITOR_RESET = "editor-reset"
+EDITOR_DOWNLOAD = "editor-download"
+EDITOR_FILE = "editor-file"
+EDITOR_MESSAGE = "editor-message"
+EDITOR_OPTIONS = "editor-options"
+EDITOR_NUMBERS = "editor-numbers"
+EDITOR_WHAT = "editor-what"
+EDITOR_TRACK = "editor-track"
+EDITOR_ERRORS = "editor-disagreement"
+EDITOR_TICK = "editor-tick"
+EDITOR_CURSOR = "editor-cursor"
+DIAGNOSE_SUGGESTION = "diagnose-suggestion"
+DIAGNOSE_TRY = "diagnose-try"
+
+# Compare runs (dashboard/compare_panel.py)
+COMPARE_CHOICE = "compare-choice"
+COMPARE_RUN = "compare-run"
+COMPARE_TICK = "compare-tick"
+COMPARE_STATUS = "compare-status"
+COMPARE_TABLE = "compare-table"
+COMPARE_CURVES = "compare-curves"
+COMPARE_GRAPHS = "compare-graphs"
+COMPARE_SHOWN = "compare-shown"
+
+# What the loop rate costs (dashboard/loop_cost_panel.py)
+LOOP_COST_RUN = "loop-cost-run"
+LOOP_COST_STATUS = "loop-cost-status"
+LOOP_COST_OVER_TIME = "loop-cost-over-time"
+LOOP_COST_BY_PERIOD = "loop-cost-by-period"
+LOOP_COST_GRAPHS = "loop-cost-graphs"

@@ -12,7 +12,16 @@ from __future__ import annotations
 
 from dash import dcc, html
 
-from dashboard import diagnosis_panel, figures, ids, recording_opener, status
+from dashboard import (
+    compare_panel,
+    diagnosis_panel,
+    editor_panel,
+    figures,
+    ids,
+    loop_cost_panel,
+    recording_opener,
+    status,
+)
 from dashboard.block_summary import LOOP_BIN_MS
 from dashboard.settings import WINDOWS_S, Settings
 from dashboard.sources import REPLAY_SPEEDS
@@ -174,9 +183,12 @@ def build(settings: Settings, replay_mode: bool, view_id: str = "") -> html.Div:
         _card("Track map", _legend_key(), _graph(ids.TRACK), extra_class="track"),
         disagreement,
         *diagnosis_panel.cards(settings),
+        editor_panel.card(settings, _graph),
         _card("Pose traces", _graph(ids.POSES), extra_class="wide"),
         loop,
+        loop_cost_panel.card(_graph),
         _card("Link health", html.Div(id=ids.LINK_TABLE), extra_class="wide"),
+        compare_panel.card(_graph),
     ]
     return html.Div(
         className="page",

@@ -64,8 +64,12 @@ def _cell(tag: str, text: str, css_class: str = "") -> str:
     return f"<{tag}{attribute}>{escape(text)}</{tag}>"
 
 
-def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int]) -> str:
-    """The link-health table as HTML (every text escaped), one row per robot."""
+def link_table(
+    snapshots: dict[str, RobotSnapshot], now: float, selected: str | None, unattributed: dict[str, int],
+    receiver_lines: list[str] = (),
+) -> str:
+    """The link-health table as HTML (every text escaped), one row per robot; under it
+    the receiver's own problems and notes (``receiver_lines``), one line each."""
     rows = []
     for robot, snap in sorted(snapshots.items()):
         if snap.state is LinkState.QUIET:
@@ -78,9 +82,10 @@ def link_table(snapshots: dict[str, RobotSnapshot], now: float, selected: str | 
                                            f"{snap.duplicates}", f"{snap.late}", errors)]
         row_class = ' class="selected"' if robot == selected else ""
         rows.append(f"<tr{row_class}>{''.join(cells)}</tr>")
-    caption = ""
+    lines = list(receiver_lines)
     if unattributed:
         text = ", ".join(f"{reason} {n}" for reason, n in sorted(unattributed.items()))
-        caption = f"<caption>{escape(f'refused before a robot could be named: {text}')}</caption>"
+        lines.append(f"refused before a robot could be named: {text}")
+    caption = f"<caption>{'<br>'.join(map(escape, lines))}</caption>" if lines else ""
     head = "".join(_cell("th", h) for h in LINK_HEAD)
     return f'<table class="link-table"><thead><tr>{head}</tr></thead><tbody>{"".join(rows)}</tbody>{caption}</table>'

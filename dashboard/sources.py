@@ -8,6 +8,7 @@ position as fast as it can. Never draws anything and never serves HTTP.
 
 from __future__ import annotations
 
+import logging
 import threading
 import time
 from typing import Callable
@@ -19,10 +20,12 @@ from receiver.formats.recording import RecordingData
 from receiver.live.hub import Hub
 from receiver.live.raw_history import RawHistory
 from receiver.live.replay import feed_hub, recorded_samples
+from receiver.live.supervise import reason
 from receiver.odometry.robot import Profile
 
 REPLAY_STEP_S = 0.02  # how often a playing replay feeds the hub (wall clock)
 REPLAY_SPEEDS = (0.25, 0.5, 1.0, 2.0, 5.0, 10.0)
+log = logging.getLogger("podwatch.replay")
 
 
 class LiveSource:
@@ -63,6 +66,7 @@ class ReplaySource:
         self.samples, self.stamps = recorded_samples(data)
         if not self.samples:
             raise UsageError(f"{data.path}: the recording holds no messages")
+        self.recording = data  # the whole recording's columns, for the page's workbench
         self.profiles = {**data.profiles, **(profiles or {})}
         self.label = str(data.path)
         self.clock = clock
@@ -96,6 +100,7 @@ class ReplaySource:
 
     def play(self) -> None:
         """Play on from the current position (from the start when at the end)."""
+        self.hub.health.set_problem("replay", None)
         with self._lock:
             if self._next >= len(self.samples):
                 self.seek(0.0)
@@ -148,7 +153,14 @@ class ReplaySource:
 
     def _run(self) -> None:
         while not self._stop.wait(REPLAY_STEP_S):
-            self.advance()
+            try:
+                self.advance()
+            except Exception as exc:  # the thread's top: say so on the page and pause, never die quietly
+                why = f"replay paused at {self.position_s:.1f} s: {reason(exc)}"
+                log.error(why)
+                with self._lock:
+                    self.playing = False
+                self.hub.health.set_problem("replay", why)
 
     def stop(self) -> None:
         """End the replay clock's thread (``start``); the position stays where it is."""

@@ -16,6 +16,7 @@ from enum import Enum
 from html import escape
 
 from receiver.live.session import LinkState, RobotSnapshot
+from receiver.odometry.robot import missing_profile_hint
 
 
 class Badge(Enum):
@@ -69,12 +70,19 @@ class Status:
 
 def status(
     snap: RobotSnapshot | None, now: float, source_label: str, replay: Replaying | None = None,
-    recording_stopped: str | None = None, worker_errors: tuple[str, ...] = (),
+    recording_stopped: str | None = None, worker_errors: tuple[str, ...] = (), problems: tuple[str, ...] = (),
+    unheard: tuple[str, ...] = (),
 ) -> Status:
     """The status line for the selected robot's ``snap`` at ``now`` (the source's clock).
-    ``replay`` when the tab shows a replay; the receiver's own troubles
-    (``recording_stopped``: the reason; ``worker_errors``: one line each) lead."""
-    badges: list[tuple[Badge, str]] = [(Badge.WORKER_ERROR, f"worker error: {e}") for e in worker_errors]
+    ``replay`` when the tab shows a replay. The receiver's own troubles lead, a badge
+    each for a worker down (``worker_errors``, one line each) and a recording stopped
+    (``recording_stopped``, the reason), then its other ``problems`` in words (an MQTT
+    broker gone). ``unheard``: profiles given for robots that sent nothing, named in the
+    hint for a robot without one."""
+    badges: list[tuple[Badge, str]] = []
+    if worker_errors:
+        badges.append((Badge.WORKER_ERROR, "worker error" if len(worker_errors) == 1
+                       else f"{len(worker_errors)} worker errors"))
     if recording_stopped:
         badges.append((Badge.RECORDING_STOPPED, "recording stopped"))
     if replay is not None:
@@ -85,8 +93,9 @@ def status(
         else:
             badges.append((Badge.REPLAY_PAUSED, "replay paused"))
     detail = source_label if replay is None else f"{source_label}, at {replay.position_s:.1f} s of {replay.duration_s:.1f} s"
-    if recording_stopped:
-        detail = f"recording stopped: {recording_stopped} \u00b7 {detail}"
+    troubles = [*worker_errors, *([f"recording stopped: {recording_stopped}"] if recording_stopped else []), *problems]
+    if troubles:
+        detail = f"{'; '.join(troubles)} \u00b7 {detail}"
     if snap is None:
         badges.append((Badge.WAITING, "waiting for a robot"))
         return Status(tuple(badges), detail)
@@ -102,5 +111,5 @@ def status(
         robot += f", {snap.rate_hz:.0f} messages/s"
     detail = f"{detail} \u00b7 {robot}"
     if not snap.has_profile:
-        detail += "; no profile for this robot (give one with --profile): not recomputed"
+        detail += f"; no profile for this robot ({missing_profile_hint(snap.robot, unheard)}): not recomputed"
     return Status(tuple(badges), detail)

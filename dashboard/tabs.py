@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import threading
 import time
+from pathlib import Path
 from typing import Callable
 
 from dashboard.sources import LiveSource, ReplaySource
@@ -78,6 +79,7 @@ class Station:
 
     Without a live source (``podwatch replay --dashboard``), each tab gets a
     replay of ``recording`` of its own, made by ``make_replay``.
+    ``profile_files`` names the file each given profile was loaded from, by robot.
     """
 
     def __init__(
@@ -87,11 +89,13 @@ class Station:
         profiles: dict[str, Profile] | None = None,
         make_replay: Callable[[RecordingData], ReplaySource] | None = None,
         clock: Callable[[], float] = time.monotonic,
+        profile_files: dict[str, Path] | None = None,
     ) -> None:
         assert live is not None or recording is not None
         self.live = live
         self.recording = recording
         self.profiles = dict(profiles or {})
+        self.profile_files = dict(profile_files or {})
         self._make_replay = make_replay or self.replay_of
         self._clock = clock
         self._tabs: dict[str, tuple[TabView, float]] = {}  # view id -> (its view, when last asked)
@@ -148,6 +152,10 @@ class Station:
         if old is not None:
             old.stop()
         return True
+
+    def profile_file(self, profile: Profile) -> Path | None:
+        """The file ``profile`` was loaded from, when it is a given one; None for a recording's own."""
+        return self.profile_files.get(profile.name) if self.profiles.get(profile.name) == profile else None
 
     def all_profiles(self) -> dict[str, Profile]:
         """Every profile a tab may recompute with: given ones, the live hub's, the recording's."""

@@ -24,7 +24,8 @@ from dashboard.downsample import pick_rows
 from dashboard.settings import Settings
 from dashboard.tabs import TabView
 from dashboard.window_rows import Reader, Window, warm
-from receiver.live.session import RobotSnapshot
+from receiver.live.health import Health, WorkerState
+from receiver.live.session import RobotSnapshot, unheard_profiles
 from receiver.odometry.robot import METRES_PER_UNIT
 
 NO_PROFILE_UNIT = "robot units"
@@ -57,6 +58,8 @@ class Refresh:
     now: float = math.nan
     unattributed: dict[str, int] = field(default_factory=dict)  # refused messages no robot could be named for
     signal_names: list[str] | None = None  # the signals the robot sent in the window, on a whole figure
+    problems: list[str] = field(default_factory=list)  # the receiver's own: a worker down, recording stopped
+    notes: list[str] = field(default_factory=list)  # the receiver's links: buffer, kernel drops, outages
     cursor: dict = field(default_factory=dict)
 
 
@@ -67,11 +70,19 @@ def _unit(shown: TabView, robot: str | None) -> tuple[str, float | None]:
     return profile.distance_unit, METRES_PER_UNIT[profile.distance_unit]
 
 
-def _status(shown: TabView, snap: RobotSnapshot | None, now: float) -> status.Status:
+def _status(shown: TabView, snapshots: dict[str, RobotSnapshot], robot: str | None, now: float,
+            health: Health, problems: list[str]) -> status.Status:
+    """The status line: the receiver's own troubles (a worker down, the recording stopped)
+    as badges of their own, the replay's state, the robot's link."""
     replay = shown.replay
     where = None if replay is None else status.Replaying(replay.playing, replay.position_s, replay.duration_s,
                                                          replay.speed)
-    return status.status(snap, now, shown.label, where)
+    down = [w.text() for w in health.workers() if w.state is not WorkerState.RUNNING]
+    stopped = health.recording_stopped
+    told = {*down, f"recording stopped: {stopped}"}
+    return status.status(snapshots.get(robot), now, shown.label, where, recording_stopped=stopped,
+                         worker_errors=tuple(down), problems=tuple(p for p in problems if p not in told),
+                         unheard=tuple(unheard_profiles(snapshots)))
 
 
 def refresh(
@@ -91,8 +102,9 @@ def refresh(
     if robot not in snapshots:
         robot = robots[0] if robots else None
     unit, metres_per_unit = _unit(shown, robot)
-    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, now=now,
-                  status=_status(shown, snapshots.get(robot), now))
+    problems = hub.health.problems()
+    out = Refresh(snapshots=snapshots, robots=robots, robot=robot, unit=unit, now=now, problems=problems,
+                  notes=hub.health.notes(), status=_status(shown, snapshots, robot, now, hub.health, problems))
     named = sum((Counter(snap.errors) for snap in snapshots.values()), Counter())
     out.unattributed = {
         str(reason): count - named[str(reason)] for reason, count in hub.errors.items() if count > named[str(reason)]

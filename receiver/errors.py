@@ -27,6 +27,14 @@ class UsageError(PodwatchError):
     """A command-line request that cannot be carried out as given."""
 
 
+class RecordingExistsError(RecordingError):
+    """A recording file that is already there: podwatch never overwrites or appends to one."""
+
+
+class LinkError(PodwatchError):
+    """A peer on the network that cannot be reached or refused us (a receiver, a broker)."""
+
+
 def describe(value: object, limit: int = 60) -> str:
     """A value that arrived, as an error message shows it: one short line, whatever it is
     (an integer of thousands of digits, a deep array, a long string)."""

@@ -45,6 +45,18 @@ FIXTURES = [
     # 12.9 in apart instead of 12.5 (HEADER_SETTINGS): for `compare`.
     ("practice-bot-figure-eight.jsonl.gz", "practice-bot.toml", "figure-eight", 10.0, [], {}),
     ("practice-bot-figure-eight-wide-track.jsonl.gz", "practice-bot.toml", "figure-eight", 10.0, [], {}),
+    # The guided check done carelessly: the forward push curves 30 degrees.
+    ("practice-bot-guided-curving.jsonl.gz", "practice-bot.toml", "guided-curving", 15.0, [], {}),
+    # Nearly symmetric side wheels and swapped encoders: the swap and its
+    # near twin (both side offsets flipped) differ by 0.2 in of geometry.
+    (
+        "practice-bot-rebuilt-swapped.jsonl.gz",
+        "practice-bot-rebuilt.toml",
+        "wander",
+        20.0,
+        ["swapped:left,right"],
+        {},
+    ),
 ]
 # Fixtures whose header declares a profile other than the simulated robot's:
 # the `--set` settings that turn the robot's profile into the declared one.
@@ -63,6 +75,7 @@ def main() -> None:
         profile = load_profile(HERE / profile_file)
         run = simulate(profile, path, 100.0, seconds, 1, parse_faults(fault_specs, profile), **options)
         out = HERE / name
+        out.unlink(missing_ok=True)  # a recording is never overwritten in place: this is a fresh one
         with RecordingWriter(out, [header_profile(name, profile)], created=CREATED) as writer:
             writer.write(run.stamp_rx(WALL_START_S))
         print(f"{name}: {len(run.samples)} messages, {out.stat().st_size / 1024:.0f} KB")

@@ -54,38 +54,44 @@ def test_recompute_example_prints_what_the_readme_shows(tmp_path, monkeypatch, c
     assert (tmp_path / "poses.csv").read_text().splitlines()[:3] == _example("head -3 poses.csv")
 
 
-@pytest.mark.parametrize(
-    "command",
-    [c for c in COMMANDS if c.startswith("podwatch recompute replay_fixtures/practice-bot-figure-eight-wide-track")],
-)
-def test_set_examples_print_what_the_readme_shows(tmp_path, monkeypatch, capsys, command):
+EXAMPLES = [line.strip().removeprefix("$ ") for line in README.splitlines() if line.startswith("    $ podwatch ")]
+
+
+def _shows(printed: list[str], shown: list[str]) -> bool:
+    """True when ``printed`` starts with the lines ``shown`` and holds each part after a "..." in order."""
+    parts, part = [], []
+    for line in shown:
+        if line == "...":
+            parts.append(part)
+            part = []
+        else:
+            part.append(line)
+    parts.append(part)
+    if printed[: len(parts[0])] != parts[0]:
+        return False
+    at = len(parts[0])
+    for part in parts[1:]:
+        found = next((k for k in range(at, len(printed) - len(part) + 1) if printed[k : k + len(part)] == part), None)
+        if found is None:
+            return False
+        at = found + len(part)
+    return True
+
+
+def test_there_are_examples_to_run():
+    assert {c.split()[1] for c in EXAMPLES} >= {"recompute", "diagnose", "calibrate", "simulate"}
+
+
+def test_every_example_prints_what_the_readme_shows(tmp_path, monkeypatch, capsys):
+    # In document order, in a scratch folder: a `simulate` example writes the
+    # recording the next example reads. Standard output, then standard error.
     monkeypatch.chdir(tmp_path)
     (tmp_path / "replay_fixtures").symlink_to(FIXTURES)
-    assert main(shlex.split(command)[1:]) == 0
-    assert capsys.readouterr().err.splitlines() == _example(command)
-
-
-def test_there_are_set_examples():
-    assert sum("--set" in c for c in COMMANDS if c.startswith("podwatch recompute")) >= 1
-
-
-def test_compare_example_prints_what_the_readme_shows(monkeypatch, capsys):
-    monkeypatch.chdir(ROOT)
-    command = next(c for c in COMMANDS if c.startswith("podwatch compare "))
-    assert main(shlex.split(command)[1:]) == 0
-    assert capsys.readouterr().out.splitlines() == _example(command)
-
-
-def test_diagnose_example_prints_what_the_readme_shows(monkeypatch, capsys):
-    monkeypatch.chdir(ROOT)
-    command = "podwatch diagnose replay_fixtures/practice-bot-figure-eight-reversed-right.jsonl.gz"
-    assert main(shlex.split(command)[1:]) == 0
-    out = capsys.readouterr().out.splitlines()
-    shown = _example(command)
-    cut = shown.index("...")
-    assert out[:cut] == shown[:cut]
-    tail = shown[cut + 1 :]
-    assert out[out.index(tail[0]) : out.index(tail[0]) + len(tail)] == tail
+    for command in EXAMPLES:
+        assert main(shlex.split(command)[1:]) == 0, command
+        captured = capsys.readouterr()
+        printed = captured.out.splitlines() + captured.err.splitlines()
+        assert _shows(printed, _example(command)), (command, printed)
 
 
 def test_simulate_to_udp_example(practice_profile, monkeypatch):

@@ -4,7 +4,8 @@ and the tuning workbench's numbers (growth, a run's row for comparing, what the 
 Rules: uses receiver.odometry (and receiver.errors) only; never
 receiver.formats, receiver.sim, receiver.live, the command line or the
 page, so that the checks run on columns from a recording or from a live
-session alike. Pure numpy and scipy.
+session alike. Pure numpy and scipy (threadpoolctl keeps diagnosis's fits on
+one BLAS thread).
 
 What the layers above use:
 - sample_clip: ``clip_from_columns``, ``last_seconds``, ``SampleClip``

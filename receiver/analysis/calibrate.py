@@ -14,6 +14,13 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from receiver.analysis.calibration_checks import (
+    large_change_note,
+    push_distance_notes,
+    push_setup_note,
+    spin_setup_notes,
+    turn_count_notes,
+)
 from receiver.analysis.sample_clip import SampleClip
 from receiver.errors import UsageError
 from receiver.odometry.conventions import imu_heading_change
@@ -36,6 +43,15 @@ MISCOUNT_SHARE = 0.15
 ACROSS_SHARE = 0.02
 # Moving steps a wheel needs before its slip can be estimated.
 MIN_SLIP_STEPS = 20
+# Likely causes of a change too large to be a small correction, in the warning.
+SPIN_CAUSES = (
+    "likely a wrong count of turns, wheels slipping on the floor, or lengths in the profile in another unit; "
+    "check before writing it"
+)
+PUSH_CAUSES = (
+    "likely a push distance not in {unit} (the profile's unit), a wrong counts_per_rev or gear_ratio, or a "
+    "wheel slipping or lifting off the floor; check before writing it"
+)
 
 
 @dataclass(frozen=True)
@@ -70,7 +86,7 @@ class Measured:
 @dataclass
 class Calibration:
     """A spin or push test's result for one robot: the measured constants, and the
-    profile with them put in (``corrected``, ready for ``write_profile``).
+    profile with them put in (``corrected``, ready for formats.profile_writer).
     """
 
     robot: str
@@ -79,6 +95,7 @@ class Calibration:
     values: list[Measured]
     corrected: Profile
     notes: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)  # what may make the result wrong: read before writing it
 
     def table(self) -> list[str]:
         """A short before/after table, one line per measured constant."""
@@ -96,6 +113,7 @@ class Calibration:
             "robot": self.robot,
             "test": self.test,
             "values": [v.to_json() for v in self.values],
+            "warnings": self.warnings,
             "notes": self.notes,
         }
 
@@ -136,9 +154,16 @@ def _slip_note(profile: Profile, slip_travel: np.ndarray, used: list[int]) -> li
 
 
 def _imu_turn(clip: SampleClip, profile: Profile) -> tuple[float, float]:
-    """(heading change, its standard deviation) from the IMU, radians, REP 103 sense."""
+    """(heading change, its standard deviation) from the IMU, radians, REP 103 sense.
+
+    The IMU is read in the profile's heading unit and sense, whether or not
+    the profile's [imu] mode uses it for the pose.
+    """
     if not np.isfinite(clip.imu).all():
-        raise UsageError("the profile uses the IMU heading, but some samples carry no IMU value")
+        raise UsageError(
+            'the turn from the IMU needs an "imu" value in every message (README: The wire protocol); '
+            "without one, give the number of whole turns (--spin-turns N)"
+        )
     steps = imu_heading_change(clip.imu[1:], clip.imu[:-1], profile.reported)
     resting = (clip.dcounts[1:] == 0).all(axis=1)
     # Reading noise from the resting steps: a step difference holds two readings' noise.
@@ -149,8 +174,9 @@ def _imu_turn(clip: SampleClip, profile: Profile) -> tuple[float, float]:
 def spin_calibration(clip: SampleClip, profile: Profile, turns: float | None, robot: str | None = None) -> Calibration:
     """Track width and sideways-wheel offset from whole turns in place.
 
-    ``turns`` is the number of whole turns the user made (either way); None
-    takes the turn from the IMU heading, which the profile must use.
+    ``turns`` is the number of turns the user made (either way); None takes
+    the turn from the IMU heading, which every sample must carry. The
+    stated turns are checked against the robot's own heading and IMU.
     """
     pair = forward_pair(profile)
     if pair is None:
@@ -162,8 +188,6 @@ def spin_calibration(clip: SampleClip, profile: Profile, turns: float | None, ro
     wheels_turn = float(kin.body_delta(total)[2])
     notes = []
     if turns is None:
-        if not profile.uses_imu:
-            raise UsageError("give the number of whole turns (--spin-turns N); the profile uses no IMU heading")
         turn, turn_std = _imu_turn(clip, profile)
         notes.append(f"turn from the IMU: {math.degrees(turn):.1f} deg")
     else:
@@ -224,7 +248,14 @@ def spin_calibration(clip: SampleClip, profile: Profile, turns: float | None, ro
         wheels[i] = replace(w, x=x)
     notes += _slip_note(profile, slip_travel, [a, b, *sideways_wheels(profile)])
     notes.append("offsets are measured from the point the robot spun about")
-    return Calibration(robot or profile.name, profile, "spin", values, profile.with_wheels(tuple(wheels)), notes)
+    warnings = []
+    if turns is not None:
+        notes += spin_setup_notes(turns, width, unit)
+        warnings += turn_count_notes(clip, profile, turns, abs(wheels_turn) / (2.0 * math.pi))
+    else:
+        notes.append("the bound covers the IMU's reading noise at rest, not an error in its own scale")
+    warnings += large_change_note([(v.name, v.before, v.after) for v in values], SPIN_CAUSES)
+    return Calibration(robot or profile.name, profile, "spin", values, profile.with_wheels(tuple(wheels)), notes, warnings)
 
 
 def push_calibration(clip: SampleClip, profile: Profile, distance: float, axis: str, robot: str | None = None) -> Calibration:
@@ -262,4 +293,8 @@ def push_calibration(clip: SampleClip, profile: Profile, distance: float, axis: 
         rolled = abs(counts[i] * kin.travel_per_count[i])
         if i not in along and rolled > ACROSS_SHARE * distance:
             notes.append(f"the {w.name} wheel rolled {rolled:.3g} {unit} across the push: push along a straight edge")
-    return Calibration(robot or profile.name, profile, "push", values, profile.with_wheels(tuple(wheels)), notes)
+    notes.append(push_setup_note(distance, unit))
+    wheels_moved = abs(float(kin.body_delta(counts * kin.travel_per_count)[0 if axis == "x" else 1]))
+    warnings = push_distance_notes(clip, profile, distance, wheels_moved)
+    warnings += large_change_note([(v.name, v.before, v.after) for v in values], PUSH_CAUSES.format(unit=unit))
+    return Calibration(robot or profile.name, profile, "push", values, profile.with_wheels(tuple(wheels)), notes, warnings)

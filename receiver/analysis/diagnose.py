@@ -1,60 +1,55 @@
 """Diagnosis: which convention mistake turns the profile's recompute into the robot's own pose.
 
-Owns the search over the hypotheses of mistakes.py on one robot's clip:
-recompute the pose under every hypothesis at once, score each against the
-reported pose, group hypotheses no clip could tell apart, rank, judge how
-sure the ranking is, and hand the best one to refine.py for the continuous
-constants. Pure numpy and scipy: no I/O, no clock, no state between calls.
+Owns the search on one robot's clip: score every hypothesis of mistakes.py
+at once (scoring.py), compare with the integration the robot code uses
+(integration_check.py), refine the leaders' constants (refine.py), and judge
+the ranking against the noise the clip shows (judgement.py), naming near
+twins (twins.py). Pure numpy and scipy: no I/O, no clock, no state between calls.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 
 import numpy as np
 
-from receiver.analysis.mistakes import Hypothesis, hypotheses, profile_changes, verdict
+from receiver.analysis.integration_check import DEFAULT_METHOD, IntegrationFinding, find_integration
+from receiver.analysis.judgement import DECIDES, Judgement, Noise, judge, same_profile
+from receiver.analysis.mistakes import hypotheses, profile_changes, verdict
 from receiver.analysis.refine import Fit, refine
 from receiver.analysis.sample_clip import SampleClip, clip_from_columns, last_seconds
+from receiver.analysis.scoring import (
+    Ranked,
+    body_deltas,
+    characteristic_length,
+    disagreement,
+    equivalence_classes,
+    recompute_all,
+    reported_poses,
+)
 from receiver.odometry.columns import Columns
-from receiver.odometry.conventions import imu_heading_change, rep103_to_reported, reported_to_rep103
-from receiver.odometry.integrate import integrate, wrap_angle
-from receiver.odometry.kinematics import Kinematics
-from receiver.odometry.robot import Profile, inches
+from receiver.odometry.robot import Profile
 
-# The runner-up must leave at least this much more disagreement (RMS, inches)
-# than the best before the clip is said to tell them apart: below it, a real
-# robot's own rounding and integration differences could swap them.
-MARGIN_FLOOR_IN = 0.5
-# ...and at least this many times the best one's, for "high" confidence.
-CONFIDENT_RATIO = 3.0
-# A best explanation that still leaves this much (RMS, inches) after
-# refinement explains the disagreement only in part.
-POOR_FIT_IN = 1.0
-# Hypotheses whose predicted reports differ by less than this (relative) on
-# the random probe are the same explanation in different words.
-_SAME_PREDICTION_RTOL = 1e-9
-_PROBE_STEPS = 48
-CONFIDENCE_LEVELS = ("high", "low", "not enough motion")
+__all__ = ["Diagnosis", "Ranked", "diagnose", "diagnose_clip", "diagnose_recent", "equivalence_classes"]
 
-
-@dataclass(frozen=True)
-class Ranked:
-    """One explanation with its score; ``equivalent`` ones predict exactly the same reports."""
-
-    hypothesis: Hypothesis
-    equivalent: tuple[Hypothesis, ...]
-    position_rms: float  # profile's distance unit
-    heading_rms: float  # radians
-    score: float  # hypot(position_rms, characteristic length * heading_rms), distance unit
+# The leaders whose constants are refined before the margin is judged: a
+# runner-up may explain the reports as well once its constants are fitted.
+REFINED_LEADERS = 3
+# The runners-up's fits stop at this relative change: their scores are
+# compared with the best one's, to a few digits.
+RUNNER_UP_TOLERANCE = 1e-3
+CONFIDENCE_LEVELS = ("high", "low", "near twins", "undecided", "not enough motion")
+# The answers that name no explanation: the page asks again as the robot moves.
+UNDECIDED = ("undecided", "not enough motion")
 
 
 @dataclass
 class Diagnosis:
     """One robot's diagnosis: explanations ranked best first with scores, how sure the
-    ranking is, the fitted constants, and the profile that agrees with the robot
-    code (``corrected``). Distances in the profile's unit.
+    ranking is and against what noise, the integration compared with, the fitted
+    constants, and the profile that agrees with the robot code (``corrected``).
+    Distances in the profile's unit.
     """
 
     robot: str
@@ -64,12 +59,15 @@ class Diagnosis:
     travel: float  # distance driven in the clip as the profile sees it, distance unit
     rotation_rad: float  # total turning, radians (unsigned)
     ranking: list[Ranked]
-    margin: float  # second score minus first, distance unit
+    margin: float  # what the second leaves beyond the first, after refinement (judgement.beyond), distance unit
     confidence: str  # one of CONFIDENCE_LEVELS
     verdict: str
     fit: Fit
     corrected: Profile  # the profile that agrees with the robot code
     notes: list[str] = field(default_factory=list)
+    noise: Noise | None = None
+    integration: IntegrationFinding | None = None
+    judgement: Judgement | None = None
 
     @property
     def best(self) -> Ranked:
@@ -81,11 +79,17 @@ class Diagnosis:
         """The suggested profile change, as ``profile_changes`` lines from ``profile`` to ``corrected``."""
         return profile_changes(self.profile, self.corrected)
 
+    @property
+    def margin_over_noise(self) -> float:
+        """The margin in multiples of the clip's noise."""
+        return self.margin / self.noise.level if self.noise is not None and self.noise.level > 0 else float("inf")
+
     def to_json(self, top: int = 5) -> dict:
         """The diagnosis for ``diagnose --json``: the first ``top`` explanations, numbers rounded,
-        angles in degrees.
+        angles in degrees; what the margin was judged against, the integration and near twins.
         """
         unit = self.profile.distance_unit
+        ratio = self.margin_over_noise
         return {
             "robot": self.robot,
             "samples": self.samples,
@@ -95,7 +99,11 @@ class Diagnosis:
             "distance_unit": unit,
             "verdict": self.verdict,
             "confidence": self.confidence,
-            "margin": round(self.margin, 6),
+            "margin": round(self.margin, 6) if np.isfinite(self.margin) else None,
+            "noise": self.noise.to_json() if self.noise is not None else None,
+            "margin_over_noise": float(f"{ratio:.4g}") if np.isfinite(ratio) else None,
+            "integration": self.integration.to_json() if self.integration is not None else None,
+            "near_twin": self.judgement.twin_json(self.profile) if self.judgement is not None else None,
             "hypotheses": [
                 {
                     "id": r.hypothesis.id,
@@ -104,209 +112,150 @@ class Diagnosis:
                     "position_rms": round(r.position_rms, 6),
                     "heading_rms_deg": round(float(np.degrees(r.heading_rms)), 6),
                     "score": round(r.score, 6),
+                    "score_after_fit": round(r.score_after, 9) if r.fit is not None else None,
                 }
                 for r in self.ranking[:top]
             ],
             "fitted": [v.to_json() for v in self.fit.values],
-            "score_after_fit": round(self.fit.score_after, 6),
+            "score_after_fit": round(self.fit.score_after, 9),
             "profile_changes": self.changes,
             "notes": self.notes,
         }
 
 
-def characteristic_length(profile: Profile) -> float:
-    """RMS distance of the wheels from the tracked point: turns heading error into a distance."""
-    return float(np.sqrt(np.mean([w.x**2 + w.y**2 for w in profile.wheels])))
-
-
-def _solve_stack(hyps: tuple[Hypothesis, ...], with_imu: bool) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None]:
-    """Per hypothesis, the linear maps of Kinematics.body_delta: counts -> deltas.
-
-    Returns W (H, n, 3) for the wheels alone and, with the IMU, W_imu
-    (H, n, 3) and C (H, 3) for deltas = counts @ W_imu + dth_imu * C.
-    body_delta is linear in its inputs, so feeding it unit counts reads the
-    maps off without reaching into the solver.
-    """
-    n = len(hyps[0].robot_profile.wheels)
-    w, w_imu, c = [], [], []
-    for h in hyps:
-        kin = Kinematics(h.robot_profile)
-        unit_travel = kin.travel(np.eye(n))
-        w.append(kin.body_delta(unit_travel))
-        if with_imu:
-            w_imu.append(kin.body_delta(unit_travel, np.zeros(n)))
-            c.append(kin.body_delta(np.zeros(n), np.ones(())))
-    if not with_imu:
-        return np.asarray(w), None, None
-    return np.asarray(w), np.asarray(w_imu), np.asarray(c)
-
-
-def _imu_dth(imu: np.ndarray, hyps: tuple[Hypothesis, ...]) -> np.ndarray:
-    """(H, N) heading change from the IMU as each hypothesis reads the robot's unit and sense."""
-    prev = np.concatenate([imu[:1], imu[:-1]])
-    cache: dict[tuple[str, str], np.ndarray] = {}
-    rows = []
-    for h in hyps:
-        rep = h.robot_profile.reported
-        key = (rep.heading_unit, rep.heading_positive)
-        if key not in cache:
-            cache[key] = imu_heading_change(imu, prev, rep)
-        rows.append(cache[key])
-    return np.asarray(rows)
-
-
-def body_deltas(dcounts: np.ndarray, imu: np.ndarray | None, hyps: tuple[Hypothesis, ...]) -> np.ndarray:
-    """(H, N, 3) body displacements under every hypothesis: one batched product, shared counts."""
-    w, w_imu, c = _solve_stack(hyps, imu is not None)
-    deltas = np.matmul(dcounts[None], w)
-    if imu is not None:
-        dth = _imu_dth(imu, hyps)
-        use = np.isfinite(dth)
-        from_imu = np.matmul(dcounts[None], w_imu) + np.where(use, dth, 0.0)[..., None] * c[:, None, :]
-        deltas = np.where(use[..., None], from_imu, deltas)
-    return deltas
-
-
-def reported_poses(pose: np.ndarray, hyps: tuple[Hypothesis, ...]) -> np.ndarray:
-    """(H, N, 3) the reported poses in REP 103, as each hypothesis's conventions read them."""
-    cache: dict = {}
-    rows = []
-    for h in hyps:
-        rep = h.robot_profile.reported
-        if rep not in cache:
-            cache[rep] = reported_to_rep103(pose, rep)
-        rows.append(cache[rep])
-    return np.asarray(rows)
-
-
-def recompute_all(
-    deltas: np.ndarray, reported: np.ndarray, anchor: np.ndarray, method: str
-) -> np.ndarray:
-    """(H, N, 3) poses: each hypothesis's deltas integrated from its own reading of the anchors.
-
-    All hypotheses go through one ``integrate`` call, laid end to end: every
-    clip starts with an anchor, so each one restarts from its own pose.
-    """
-    h, n, _ = deltas.shape
-    deltas = np.where(anchor[None, :, None], 0.0, deltas)
-    at = np.flatnonzero(anchor)
-    anchor_at = (np.arange(h)[:, None] * n + at[None, :]).ravel()
-    poses = integrate(deltas.reshape(h * n, 3), np.zeros(3), method, anchor_at, reported[:, at].reshape(-1, 3))
-    return poses.reshape(h, n, 3)
-
-
-def disagreement(poses: np.ndarray, reported: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(position RMS, heading RMS) over the last axis but one: shapes (..., N, 3) -> (...)."""
-    d = poses - reported
-    position = np.sqrt(np.mean(d[..., 0] ** 2 + d[..., 1] ** 2, axis=-1))
-    heading = np.sqrt(np.mean(wrap_angle(d[..., 2]) ** 2, axis=-1))
-    return position, heading
-
-
-@lru_cache(maxsize=16)
-def equivalence_classes(profile: Profile) -> tuple[tuple[int, ...], ...]:
-    """Groups of hypothesis indices that predict the very same reports from any counts and start.
-
-    Found on a random probe (fixed seed) with rotation and motion on every
-    axis: such hypotheses are one explanation in different words (a swap of
-    mirror-image wheels is the same as flipping both their offset signs), so
-    no clip can rank them. The simplest of each group comes first.
-    """
+def _ranking(
+    clip: SampleClip, profile: Profile, deltas: np.ndarray, reported: np.ndarray, method: str
+) -> list[Ranked]:
+    """Every group of equivalent hypotheses, best plain score first, under one integration method."""
     hyps = hypotheses(profile)
-    rng = np.random.default_rng(20240607)
-    scale = characteristic_length(profile)
-    kin = Kinematics(profile)
-    twist = rng.normal(0.0, 1.0, (_PROBE_STEPS, 3)) * np.array([scale, scale, 0.5])
-    dcounts = kin.wheel_travel(twist) / kin.travel_per_count
-    start = rep103_to_reported(np.array([rng.normal(0.0, 3 * scale), rng.normal(0.0, 3 * scale), rng.uniform(-3, 3)]), profile.reported)
-    imu = rng.normal(0.0, 1.0, _PROBE_STEPS) if profile.uses_imu else None
-    deltas = body_deltas(dcounts, imu, hyps)
-    anchor = np.zeros(_PROBE_STEPS, dtype=bool)
-    anchor[0] = True
-    reported = reported_poses(np.tile(start, (_PROBE_STEPS, 1)), hyps)
-    poses = recompute_all(deltas, reported, anchor, "arc")
-    predicted = np.asarray([rep103_to_reported(p, h.robot_profile.reported) for p, h in zip(poses, hyps)])
-    gap = np.abs(predicted[:, None] - predicted[None, :])
-    same = (gap <= _SAME_PREDICTION_RTOL * (scale + np.abs(predicted[None, :]))).all(axis=(2, 3))
-    classes: list[tuple[int, ...]] = []
-    placed = np.zeros(len(hyps), dtype=bool)
-    for i in range(len(hyps)):
-        if not placed[i]:
-            members = np.flatnonzero(same[i] & ~placed)
-            placed[members] = True
-            classes.append(tuple(int(m) for m in members))
-    return tuple(classes)
+    poses = recompute_all(deltas, reported, clip.anchor, method, clip.loops)
+    position, heading = disagreement(poses, reported)
+    score = np.hypot(position, characteristic_length(profile) * heading)
+    groups = sorted(equivalence_classes(profile), key=lambda members: score[members[0]])
+    return [
+        Ranked(hyps[m[0]], tuple(hyps[i] for i in m[1:]), float(position[m[0]]), float(heading[m[0]]),
+               float(score[m[0]]), m[0])
+        for m in groups
+    ]
 
 
-def diagnose_clip(clip: SampleClip, profile: Profile, robot: str | None = None, method: str = "arc") -> Diagnosis:
-    """Rank every hypothesis on a clip with reported poses, refine the best, judge the margin."""
+def _refine_leaders(
+    ranking: list[Ranked], clip: SampleClip, reported: np.ndarray, method: str, length: float, done: dict[int, Fit]
+) -> list[Ranked]:
+    """The ranking with the leaders refined and re-ordered by their score after the fit."""
+    leaders = []
+    for r in ranking[:REFINED_LEADERS]:
+        fit = done.get(r.index) or refine(
+            clip, r.hypothesis, reported[r.index], method, length, 1e-8 if r is ranking[0] else RUNNER_UP_TOLERANCE
+        )
+        leaders.append(replace(r, fit=fit))
+    leaders.sort(key=lambda r: r.score_after)
+    return leaders + ranking[REFINED_LEADERS:]
+
+
+def _merge_same_answers(
+    ranking: list[Ranked], clip: SampleClip, reported: np.ndarray, method: str, length: float
+) -> list[Ranked]:
+    """The leaders whose fits end in the leader's profile, folded into one answer.
+
+    They are one answer in different words once the constants are fitted
+    (a sideways wheel's small offset flipped and fitted back), so the margin
+    is judged against the next different one; the simplest of them leads.
+    """
+    leaders = [r for r in ranking if r.fit is not None]
+    same = [r for r in leaders if same_profile(r.fit.profile, leaders[0].fit.profile, length)]
+    if len(same) == 1:
+        return ranking
+    lead = min(same, key=lambda r: (r.hypothesis.size, r.score_after))
+    if lead is not leaders[0]:
+        lead = replace(lead, fit=refine(clip, lead.hypothesis, reported[lead.index], method, length))
+    merged = replace(lead, same_after_fit=tuple(r for r in same if r.index != lead.index))
+    return [merged] + [r for r in ranking if r not in same]
+
+
+@lru_cache(maxsize=1)
+def _blas_threads():
+    """The process's BLAS libraries (threadpoolctl), found once: numpy's and scipy.optimize's."""
+    import scipy.optimize  # noqa: F401  (loads scipy's BLAS before the libraries are listed)
+    from threadpoolctl import ThreadpoolController
+
+    return ThreadpoolController()
+
+
+def diagnose_clip(
+    clip: SampleClip, profile: Profile, robot: str | None = None, method: str | None = None
+) -> Diagnosis:
+    """Rank every hypothesis on a clip with reported poses, refine the leaders, judge the margin.
+
+    ``method`` forces an integration method; by default it is the profile's
+    ``[reported] integration``, or found from the clip when the profile does not say.
+    BLAS runs on one thread meanwhile: the fits' small products gain nothing
+    from more, and on a busy machine the extra threads cost 3-4 times the time.
+    """
+    with _blas_threads().limit(limits=1, user_api="blas"):
+        return _diagnose_clip(clip, profile, robot, method)
+
+
+def _diagnose_clip(clip: SampleClip, profile: Profile, robot: str | None, method: str | None) -> Diagnosis:
     hyps = hypotheses(profile)
     imu = clip.imu if profile.uses_imu else None
     deltas = body_deltas(clip.dcounts, imu, hyps)
     reported = reported_poses(clip.pose, hyps)
-    poses = recompute_all(deltas, reported, clip.anchor, method)
-    position, heading = disagreement(poses, reported)
     length = characteristic_length(profile)
-    score = np.hypot(position, length * heading)
+    resolution = float(np.abs([w.travel_per_count for w in profile.wheels]).max())
 
-    groups = sorted(equivalence_classes(profile), key=lambda members: score[members[0]])
-    ranking = [
-        Ranked(hyps[m[0]], tuple(hyps[i] for i in m[1:]), float(position[m[0]]), float(heading[m[0]]), float(score[m[0]]))
-        for m in groups
-    ]
-    best_index = groups[0][0]
+    declared = method or profile.reported.integration
+    first = declared or DEFAULT_METHOD
+    ranking = _ranking(clip, profile, deltas, reported, first)
+    if declared is not None:
+        integration = IntegrationFinding(declared, "given" if method else "profile")
+        fits: dict[int, Fit] = {}
+    else:
+        lead = ranking[0]
+        integration = find_integration(clip, lead.hypothesis, reported[lead.index], length, resolution, DECIDES)
+        fits = {lead.index: integration.fits[integration.method]}
+        if integration.method != first:
+            ranking = _ranking(clip, profile, deltas, reported, integration.method)
+            fits = {i: f for i, f in fits.items() if i == ranking[0].index}
+    ranking = _refine_leaders(ranking, clip, reported, integration.method, length, fits)
+    ranking = _merge_same_answers(ranking, clip, reported, integration.method, length)
+
     # The clip's motion as the profile sees it (hypothesis 0 is "no mistake").
     seen = np.where(clip.anchor[:, None], 0.0, deltas[0])
-    fit = refine(clip, hyps[best_index], reported[best_index], method, length)
+    amounts = {
+        "forward": float(np.abs(seen[:, 0]).sum()),
+        "left": float(np.abs(seen[:, 1]).sum()),
+        "turn": float(np.abs(seen[:, 2]).sum()),
+    }
+    best = ranking[0]
+    noise = Noise.of(best.fit, resolution, len(clip))
+    judgement = judge(profile, ranking, noise, amounts)
 
-    inch = inches(profile.distance_unit)
-    margin = ranking[1].score - ranking[0].score if len(ranking) > 1 else float("inf")
-    notes = []
-    if margin < MARGIN_FLOOR_IN * inch:
-        confidence = "not enough motion"
-        notes.append(
-            "the clip cannot tell the best explanations apart: drive forward, sideways and turn "
-            "(at least a quarter turn) within the clip"
-        )
-    elif ranking[1].score < CONFIDENT_RATIO * ranking[0].score:
-        confidence = "low"
-    else:
-        confidence = "high"
-    if fit.score_after > POOR_FIT_IN * inch:
-        notes.append(
-            f"even the best explanation leaves {fit.score_after:.3g} {profile.distance_unit} RMS: "
-            "something outside the searched mistakes differs too"
-        )
-        if confidence == "high":
-            confidence = "low"
-    undecided = confidence == "not enough motion"
-    if ranking[0].equivalent and not undecided:
-        also = "; ".join(verdict(h, profile) for h in ranking[0].equivalent)
-        notes.append(f"no clip can tell this from: {also}")
-    faults = ranking[0].hypothesis.faults
-    if (faults.reversed or faults.swapped or faults.offset_sign) and not undecided:
-        notes.append(
-            "the suggested profile follows the robot code; which of the two is physically right, "
-            "the guided check tells (podwatch diagnose --guided)"
-        )
+    corrected = best.fit.profile if judgement.names_explanation else profile
+    if integration.source == "clip" and profile.reported.integration is None:
+        # Every contender was compared under the same method: the finding holds whichever is right.
+        corrected = replace(corrected, reported=replace(corrected.reported, integration=integration.method))
     return Diagnosis(
         robot=robot or profile.name,
         profile=profile,
         samples=len(clip),
         duration_s=clip.duration_s,
         travel=float(np.hypot(seen[:, 0], seen[:, 1]).sum()),
-        rotation_rad=float(np.abs(seen[:, 2]).sum()),
+        rotation_rad=amounts["turn"],
         ranking=ranking,
-        margin=float(margin),
-        confidence=confidence,
-        verdict="not enough motion to tell" if undecided else verdict(ranking[0].hypothesis, profile),
-        fit=fit,
-        corrected=profile if undecided else fit.profile,
-        notes=notes,
+        margin=judgement.margin,
+        confidence=judgement.confidence,
+        verdict=judgement.verdict,
+        fit=best.fit,
+        corrected=corrected,
+        notes=judgement.notes,
+        noise=noise,
+        integration=integration,
+        judgement=judgement,
     )
 
 
-def diagnose(cols: Columns, profile: Profile, robot: str | None = None, method: str = "arc") -> Diagnosis:
+def diagnose(cols: Columns, profile: Profile, robot: str | None = None, method: str | None = None) -> Diagnosis:
     """Diagnose one robot's received columns (they must carry the robot's own pose)."""
     return diagnose_clip(clip_from_columns(cols, need_pose=True), profile, robot, method)
 

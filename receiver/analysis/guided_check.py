@@ -11,11 +11,13 @@ from __future__ import annotations
 
 import itertools
 import math
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
+from receiver.analysis.move_quality import refusal
 from receiver.analysis.sample_clip import SampleClip
+from receiver.analysis.scoring import characteristic_length
 from receiver.odometry.conventions import reported_to_rep103
 from receiver.odometry.integrate import wrap_angle
 from receiver.odometry.kinematics import Kinematics
@@ -24,6 +26,7 @@ from receiver.odometry.robot import (
     HEADING_UNITS,
     HEADING_ZEROS,
     Y_AXES,
+    CONVENTION_KEYS,
     Profile,
     Reported,
     inches,
@@ -74,6 +77,7 @@ class Move:
     last: int  # index of the sample where it ended
     travel: np.ndarray  # (n,) signed wheel travel under the profile
     amount: float  # distance unit, or radians for the turn, from the wheels' magnitudes
+    refused: str | None = None  # why it cannot be scored (not made as asked), with what to do
 
 
 @dataclass
@@ -92,6 +96,11 @@ class GuidedResult:
     def flags(self) -> list[str]:
         """Subjects of the overall checks that failed, e.g. ["wheel right direction"]."""
         return [check.subject for check in self.checks if check.step == "overall" and check.ok is False]
+
+    @property
+    def refused(self) -> list[str]:
+        """The moves found but refused (turned or drifted too much to score)."""
+        return [kind for kind in MOVES if kind in self.moves and self.moves[kind].refused is not None]
 
     @property
     def passed(self) -> bool:
@@ -128,12 +137,15 @@ def _runs(moving: np.ndarray, t: np.ndarray) -> list[tuple[int, int]]:
 
 
 def find_moves(clip: SampleClip, profile: Profile) -> tuple[dict[str, Move], int]:
-    """The largest move of each kind, and how many other moves there were.
+    """The largest move of each kind made as asked (else the largest refused one), and how
+    many other moves there were.
 
     Sign-independent: a run of motion is classed by how closely the
     magnitudes of its wheel travel match each move's pattern under the
-    profile (|A e_x|, |A e_y|, |A e_theta|).
+    profile (|A e_x|, |A e_y|, |A e_theta|); move_quality.py refuses one
+    that turned or drifted too much.
     """
+    length = characteristic_length(profile)
     kin = Kinematics(profile)
     travel = clip.dcounts * kin.travel_per_count
     dt = float(np.median(np.diff(clip.t))) if len(clip) > 1 else 1.0
@@ -157,8 +169,10 @@ def find_moves(clip: SampleClip, profile: Profile) -> tuple[dict[str, Move], int
         j = int(np.argmax(likeness))
         amount = float(patterns[j] @ size / (patterns[j] @ patterns[j]))
         kind = MOVES[j]
-        if kind not in found or amount > found[kind].amount:
-            found[kind] = Move(kind, max(a - 1, 0), b, net, amount)
+        move = Move(kind, max(a - 1, 0), b, net, amount, refusal(kind, net, profile, length, SCALE_TOLERANCE))
+        held = found.get(kind)
+        if held is None or (held.refused is not None, -held.amount) > (move.refused is not None, -move.amount):
+            found[kind] = move
     return found, count - len(found)
 
 
@@ -245,10 +259,10 @@ def _conventions_that_fit(moves: dict[str, Move], pose: np.ndarray, profile: Pro
     """The [reported] settings closest to the profile's under which every pose check passes."""
     current = profile.reported
     choices = [HEADING_UNITS, HEADING_POSITIVE, Y_AXES, HEADING_ZEROS]
-    names = [f.name for f in fields(Reported)]
+    names = CONVENTION_KEYS
     fitting = []
     for values in itertools.product(*choices):
-        candidate = Reported(**dict(zip(names, values)))
+        candidate = replace(current, **dict(zip(names, values)))
         reading = _read_pose(moves, pose, candidate, profile.distance_unit)
         if reading and reading.x_ok and reading.y_ok and reading.heading_ok and reading.zero_ok:
             fitting.append((sum(getattr(candidate, n) != getattr(current, n) for n in names), values, candidate))
@@ -266,6 +280,9 @@ def guided_check(clip: SampleClip, profile: Profile, robot: str | None = None) -
         if kind not in moves:
             checks.append(Check(kind, "move", False, f"not found: {INSTRUCTIONS[kind]}"))
             continue
+        if moves[kind].refused is not None:
+            checks.append(Check(kind, "move", False, f"refused, not scored: {moves[kind].refused}"))
+            continue
         amount = moves[kind].amount
         shown = f"{math.degrees(amount):.0f} deg" if kind == "turn" else f"{amount:.3g} {unit}"
         big_enough = amount >= SHORT_SLACK * minimum[kind]
@@ -275,7 +292,7 @@ def guided_check(clip: SampleClip, profile: Profile, robot: str | None = None) -
 
     per_wheel: dict[int, list[Check]] = {}
     for kind in MOVES:
-        if kind in moves:
+        if kind in moves and moves[kind].refused is None:
             for i, direction, scale in _wheel_checks(moves[kind], profile, kin):
                 checks += [direction, scale]
                 per_wheel.setdefault(i, []).extend([direction, scale])
@@ -301,12 +318,12 @@ def guided_check(clip: SampleClip, profile: Profile, robot: str | None = None) -
                                 "agrees with the other wheels" if all(scales) else "disagrees with the other wheels: calibrate with a push test"))
 
     corrected = profile.with_wheels(tuple(wheels))
-    found_all = all(k in moves for k in MOVES)
+    found_all = all(k in moves and moves[k].refused is None for k in MOVES)
     reading = _read_pose(moves, clip.pose, profile.reported, unit) if found_all else None
     subjects = ("reported x", "reported y", "reported heading", "reported heading zero")
     if reading is None:
         for s in subjects:
-            checks.append(Check("overall", s, None, "needs all three moves and the robot's reported pose"))
+            checks.append(Check("overall", s, None, "needs all three moves, made as asked, and the robot's reported pose"))
     else:
         oks = (reading.x_ok, reading.y_ok, reading.heading_ok, reading.zero_ok)
         for s, ok in zip(subjects, oks):

@@ -147,7 +147,7 @@ def profile_changes(before: Profile, after: Profile) -> list[str]:
     for f in fields(Reported):
         old, new = getattr(before.reported, f.name), getattr(after.reported, f.name)
         if old != new:
-            changes.append(f"reported.{f.name}: {old} -> {new}")
+            changes.append(f"reported.{f.name}: {_show(old)} -> {_show(new)}")
     declared = {w.name: w for w in before.wheels}
     for slot, (old_w, new_w) in enumerate(zip(before.wheels, after.wheels)):
         if old_w.name != new_w.name:
@@ -161,6 +161,8 @@ def profile_changes(before: Profile, after: Profile) -> list[str]:
 
 
 def _show(value: object) -> str:
+    if value is None:
+        return "(not set)"
     if isinstance(value, bool):
         return str(value).lower()
     return f"{value:.6g}" if isinstance(value, float) else str(value)

@@ -30,6 +30,17 @@ SIGNIFICANT_REL = 0.002
 # Singular values of the Jacobian below this fraction of the largest are
 # directions the clip says nothing about.
 _RANK_REL = 1e-7
+# How far a fit may move a constant: track width and diameters within this
+# factor of the hypothesis's value, a sideways wheel's forward offset within
+# the robot's characteristic length of it. A constant off by more is a
+# mistake for the hypotheses to name, not a small error for the fit: a
+# free fit could reverse a wheel with a negative diameter or swap two wheels
+# with a negative track width, and then every explanation would fit.
+SCALE_BOUND = 2.0
+# The fitted values replace the profile's only when together they explain
+# at least this many encoder counts' travel (RMS) more than the profile's:
+# less is noise that pushed the fit along a direction the clip hardly sees.
+MEANINGFUL_COUNTS = 3.0
 
 
 @dataclass(frozen=True)
@@ -44,6 +55,7 @@ class Fitted:
     std: float  # one standard error; inf when the clip does not determine it
     unit: str
     scale: float  # the size "determined" and "significant" are judged against
+    meaningful: bool = True  # False when the fit as a whole explained too little to apply
 
     @property
     def determined(self) -> bool:
@@ -56,7 +68,7 @@ class Fitted:
         three standard errors and more than SIGNIFICANT_REL of ``scale``.
         """
         change = abs(self.fitted - self.before)
-        return self.determined and change > max(3.0 * self.std, SIGNIFICANT_REL * self.scale)
+        return self.meaningful and self.determined and change > max(3.0 * self.std, SIGNIFICANT_REL * self.scale)
 
     def to_json(self) -> dict:
         """The constant as JSON; "applied" says whether the fit replaced the profile's value,
@@ -82,8 +94,23 @@ class Fit:
 
     values: list[Fitted]
     score_before: float
-    score_after: float
+    score_after: float  # with the significant fitted values in (``profile``)
     profile: Profile  # the hypothesis's profile with the significant fitted values in it
+    method: str = "arc"  # the integration the fit compared with
+    residuals: int = 0  # how many residuals the RMS is over (3 per sample)
+    score_fitted: float = math.nan  # with every fitted value in: the least this hypothesis can leave
+    correlation: float = 0.0  # the residuals' lag-one correlation (see lag_one_correlation)
+
+    @property
+    def independent_samples(self) -> float:
+        """About how many independent samples the residuals hold (at least one)."""
+        samples = self.residuals / 3.0
+        return max(samples * (1.0 - self.correlation) / (1.0 + self.correlation), 1.0)
+
+    @property
+    def free_parameters(self) -> int:
+        """How many constants were fitted."""
+        return len(self.values)
 
 
 class _Model:
@@ -115,6 +142,22 @@ class _Model:
             units.append(unit)
         self.names, self.start = names, np.asarray(values)
         self.scales, self.units = np.asarray(scales), units
+        self.offset = np.zeros(len(names), dtype=bool)
+        self.offset[int(self.pair is not None) : int(self.pair is not None) + len(self.sideways)] = True
+
+    def values(self, u: np.ndarray) -> np.ndarray:
+        """The constants for the fit's free variables ``u`` (0 at the start), kept inside their
+        bounds smoothly: an offset moves by at most its scale, a length by a factor of SCALE_BOUND.
+
+        A plain bounded fit (scipy's trf with bounds) cost several times as much per call.
+        """
+        t = np.tanh(u)
+        return np.where(self.offset, self.start + self.scales * t, self.start * SCALE_BOUND**t)
+
+    def slopes(self, u: np.ndarray) -> np.ndarray:
+        """d values / d u at ``u``."""
+        t = np.tanh(u)
+        return (1.0 - t * t) * np.where(self.offset, self.scales, self.values(u) * math.log(SCALE_BOUND))
 
     def profile(self, p: np.ndarray) -> Profile:
         wheels = list(self.base.wheels)
@@ -145,11 +188,33 @@ def _std_errors(jac: np.ndarray, residual_variance: float) -> np.ndarray:
     return np.where(touches_free, np.inf, np.sqrt(var))
 
 
-def refine(clip: SampleClip, hypothesis: Hypothesis, reported: np.ndarray, method: str, length: float) -> Fit:
+def lag_one_correlation(residuals: np.ndarray) -> float:
+    """The residuals' (3, N) mean lag-one correlation, in [0, 1): how much each follows the one before.
+
+    Residuals of an integrated pose are far from independent: one packet's
+    rounding stays in every pose after it. With a lag-one correlation rho,
+    N such residuals hold about N (1 - rho) / (1 + rho) independent ones
+    (the first-order autoregressive model), and the variance of a fitted
+    value grows by (1 + rho) / (1 - rho).
+    """
+    rho = []
+    for row in residuals:
+        a, b = row[1:] - row[1:].mean(), row[:-1] - row[:-1].mean()
+        scale = math.sqrt(float(a @ a) * float(b @ b))
+        if scale > 0.0:
+            rho.append(float(a @ b) / scale)
+    return min(max(float(np.mean(rho)) if rho else 0.0, 0.0), 1.0 - 1e-6)
+
+
+def refine(
+    clip: SampleClip, hypothesis: Hypothesis, reported: np.ndarray, method: str, length: float, tolerance: float = 1e-8
+) -> Fit:
     """Fit the hypothesis's continuous constants so its recompute best matches ``reported`` (N, 3, REP 103).
 
     Residuals are the anchored pose differences, heading weighted by the
     robot's characteristic ``length`` (so both read as distances).
+    ``tolerance`` is the relative change in cost (and in the constants) at
+    which the fit stops: a runner-up only needs its score to a few digits.
     """
     model = _Model(hypothesis.robot_profile, length)
     anchor_at = np.flatnonzero(clip.anchor)
@@ -163,7 +228,7 @@ def refine(clip: SampleClip, hypothesis: Hypothesis, reported: np.ndarray, metho
         kin = Kinematics(model.profile(p))
         deltas = kin.body_delta(kin.travel(clip.dcounts), dth_imu)
         deltas[clip.anchor] = 0.0
-        poses = integrate(deltas, np.zeros(3), method, anchor_at, anchor_pose)
+        poses = integrate(deltas, np.zeros(3), method, anchor_at, anchor_pose, clip.loops)
         d = poses - reported
         return np.concatenate([d[:, 0], d[:, 1], length * wrap_angle(d[:, 2])])
 
@@ -175,13 +240,25 @@ def refine(clip: SampleClip, hypothesis: Hypothesis, reported: np.ndarray, metho
     # podwatch command would otherwise pay at start-up.
     from scipy.optimize import least_squares
 
-    result = least_squares(residuals, model.start, x_scale=model.scales, method="trf")
+    result = least_squares(
+        lambda u: residuals(model.values(u)), np.zeros(len(model.start)), method="trf", ftol=tolerance, xtol=tolerance
+    )
+    fitted = model.values(result.x)
     m, p = len(result.fun), len(model.start)
-    variance = float(result.fun @ result.fun) / max(m - p, 1)
-    std = _std_errors(result.jac, variance)
+    rho = lag_one_correlation(result.fun.reshape(3, -1))
+    variance = float(result.fun @ result.fun) / max(m - p, 1) * (1.0 + rho) / (1.0 - rho)
+    std_u = _std_errors(result.jac, variance)
+    known = np.isfinite(std_u)
+    std = np.where(known, np.where(known, std_u, 0.0) * model.slopes(result.x), np.inf)
     values = [
         Fitted(name, float(before), float(after), float(s), unit, float(scale))
-        for name, before, after, s, unit, scale in zip(model.names, model.start, result.x, std, model.units, model.scales)
+        for name, before, after, s, unit, scale in zip(model.names, model.start, fitted, std, model.units, model.scales)
     ]
-    applied = np.where([v.significant for v in values], result.x, model.start)
-    return Fit(values, rms(start_residual), rms(residuals(applied)), model.profile(applied))
+    before = rms(start_residual)
+    applied = np.where([v.significant for v in values], fitted, model.start)
+    after = rms(residuals(applied))
+    resolution = float(np.abs([w.travel_per_count for w in model.base.wheels]).max())
+    if before - after < MEANINGFUL_COUNTS * resolution:
+        values = [replace(v, meaningful=False) for v in values]
+        applied, after = model.start, before
+    return Fit(values, before, after, model.profile(applied), method, m, min(rms(result.fun), before), rho)

@@ -14,7 +14,7 @@ import numpy as np
 
 from receiver.errors import UsageError
 from receiver.odometry.columns import Columns
-from receiver.odometry.counts import ACCEPTED, ANCHORS, CLOCK_BACK_TOLERANCE_S, classify, count_change
+from receiver.odometry.counts import ACCEPTED, ANCHORS, CLOCK_BACK_TOLERANCE_S, SEQ_MODULUS, classify, count_change
 
 # Below this many samples no check can say anything (a tenth of a second at 100 Hz).
 MIN_SAMPLES = 10
@@ -35,6 +35,7 @@ class SampleClip:
     anchor: np.ndarray  # (N,) bool
     pose: np.ndarray  # (N, 3)
     imu: np.ndarray  # (N,)
+    loops: np.ndarray | None = None  # (N,) the robot's loops each step spans (1 unless samples were lost)
 
     def __len__(self) -> int:
         return len(self.t)
@@ -70,7 +71,10 @@ def clip_from_columns(cols: Columns, need_pose: bool = False) -> SampleClip:
     dcounts = np.zeros(kept.ticks.shape)
     dcounts[1:] = count_change(kept.ticks[1:], kept.ticks[:-1])
     dcounts[anchor] = 0.0
-    return SampleClip(t=kept.t, dcounts=dcounts, anchor=anchor, pose=kept.pose, imu=kept.imu)
+    loops = np.ones(len(kept), dtype=np.int64)
+    loops[1:] = np.maximum((kept.seq[1:] - kept.seq[:-1]) % SEQ_MODULUS, 1)
+    loops[anchor] = 1
+    return SampleClip(t=kept.t, dcounts=dcounts, anchor=anchor, pose=kept.pose, imu=kept.imu, loops=loops)
 
 
 def last_seconds(cols: Columns, seconds: float) -> Columns:

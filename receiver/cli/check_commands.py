@@ -25,15 +25,18 @@ from receiver.analysis.wording import (
     change_lines,
     clip_line,
     confidence_words,
+    after_fit,
     explanation_id,
     guided_outcome,
+    integration_words,
+    small,
 )
-from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, warn
+from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, profile_sources, warn
 from receiver.errors import UsageError
-from receiver.formats.profile_toml import write_profile
+from receiver.formats.profile_writer import write_profile_file
 from receiver.formats.recording import read_recording
 from receiver.odometry.columns import Columns
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, missing_profile_hint
 
 
 def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Profile]]:
@@ -51,12 +54,13 @@ def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Pro
         names = list(data.robots)
     if (one or args.write_profile) and len(names) > 1:
         raise UsageError(f"{args.recording} holds several robots ({', '.join(names)}): choose one with --robot")
+    unused = [given for given in cli_profiles if given not in data.robots]
     chosen = []
     for name in names:
         if name not in profiles:
             if len(names) == 1:
-                raise UsageError(f"robot {name!r} has no profile: give one with --profile")
-            warn(f"robot {name!r} has no profile (give one with --profile); skipped")
+                raise UsageError(f"robot {name!r} has no profile: {missing_profile_hint(name, unused)}")
+            warn(f"robot {name!r} has no profile ({missing_profile_hint(name, unused)}); skipped")
             continue
         cols = data.robots[name]
         if getattr(args, "last", None) is not None:
@@ -68,12 +72,16 @@ def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Pro
 
 
 def _write(args: argparse.Namespace, before: Profile, after: Profile) -> None:
+    """Write the corrected profile: into the text of the user's --profile file for this robot
+    (only the changed values change), or as a clean commented file for a recording's profile."""
     if not args.write_profile:
         return
     if after == before:
         warn("nothing to change: the profile is written as it was")
-    write_profile(after, args.write_profile)
-    print(f"podwatch: wrote {args.write_profile}", file=sys.stderr)
+    source = profile_sources(args.profile).get(before.name)
+    write_profile_file(args.write_profile, after, source)
+    kept = f" (changes written into a copy of {source})" if source else " (from the recording's profile)"
+    print(f"podwatch: wrote {args.write_profile}{kept}", file=sys.stderr)
 
 
 def _diagnosis_text(diagnosis: Diagnosis) -> list[str]:
@@ -83,19 +91,20 @@ def _diagnosis_text(diagnosis: Diagnosis) -> list[str]:
         clip_line(diagnosis),
         f"verdict: {diagnosis.verdict}",
         f"confidence: {confidence_words(diagnosis)}",
-        f"  {'#':>2}  {'explanation':44s} {'position RMS':>14s} {'heading RMS':>12s} {'score':>10s}",
+        f"integration: {integration_words(diagnosis)}",
+        f"  {'#':>2}  {'explanation':44s} {'position RMS':>14s} {'heading RMS':>12s} {'score':>10s} {'after fit':>10s}",
     ]
     for k, ranked in enumerate(diagnosis.ranking[:TOP_HYPOTHESES], 1):
         lines.append(
             f"  {k:>2}  {explanation_id(ranked):44s} {ranked.position_rms:11.3f} {unit:2s} "
-            f"{math.degrees(ranked.heading_rms):8.2f} deg {ranked.score:10.3f}"
+            f"{math.degrees(ranked.heading_rms):8.2f} deg {ranked.score:10.3f} {after_fit(ranked):>10s}"
         )
     lines.append(
-        f"fitted constants (what the robot code uses; the profile's first), RMS {fit.score_before:.3g} -> "
-        f"{fit.score_after:.3g} {unit}:"
+        f"fitted constants (what the robot code uses; the profile's first), RMS {small(fit.score_before, 3)} -> "
+        f"{small(fit.score_after, 3)} {unit}:"
     )
     for fitted in fit.values:
-        how = f"+-{fitted.std:.2g}" if fitted.determined else "not determined by this clip"
+        how = f"+-{small(fitted.std)}" if fitted.determined else "not determined by this clip"
         applied = "  (changed)" if fitted.significant else ""
         lines.append(f"  {fitted.name:30s} {fitted.before:10.4f} -> {fitted.fitted:10.4f} {fitted.unit} {how}{applied}")
     lines += change_lines(diagnosis.changes)
@@ -159,6 +168,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
     else:
         lines = [f"{robot}: {cal.test} test, {len(clip)} samples over {clip.duration_s:.1f} s", *cal.table()]
         lines += change_lines(changes)
+        lines += [f"warning: {warning}" for warning in cal.warnings]
         lines += [f"note: {note}" for note in cal.notes]
         print("\n".join(lines))
     _write(args, profile, cal.corrected)

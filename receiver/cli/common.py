@@ -28,6 +28,12 @@ def load_profiles(paths: Sequence[str] | None) -> dict[str, Profile]:
     return {profile.name: profile for profile in map(load_profile, paths or ())}
 
 
+def profile_sources(paths: Sequence[str] | None) -> dict[str, str]:
+    """The file each --profile option's robot came from, by robot name: what a corrected
+    profile is written into, the user's comments and layout kept."""
+    return {load_profile(path).name: path for path in paths or ()}
+
+
 def counts_per_message(profiles: dict[str, Profile]) -> dict[str, int]:
     """How many encoder counts each profiled robot's messages carry: what the recording reader checks."""
     return {name: len(profile.wheels) for name, profile in profiles.items()}

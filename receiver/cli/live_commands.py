@@ -8,15 +8,14 @@ program.py registers these with ``add_live_commands``.
 from __future__ import annotations
 
 import argparse
-import logging
+import errno
 import signal
-import sys
 import threading
 import time
 from pathlib import Path
 
-from receiver.cli.common import counts_per_message, load_profiles, say, warn
-from receiver.errors import UsageError
+from receiver.cli.common import counts_per_message, load_profiles, profile_sources, say, warn
+from receiver.errors import PodwatchError, UsageError
 from receiver.formats.protocol import MQTT_PREFIX as DEFAULT_PREFIX
 from receiver.live.transports.udp import DEFAULT_UDP_HOST, DEFAULT_UDP_PORT
 from receiver.odometry.robot import Profile
@@ -33,14 +32,13 @@ def cmd_serve(args: argparse.Namespace) -> int:
     """
     import asyncio
 
-    from receiver.live.serve import ServeConfig, default_recording_path, parse_host_port, serve
+    from receiver.live.serve import ServeConfig, parse_host_port, serve
 
-    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
     udp = args.udp
     if udp is None and args.ws is None and args.mqtt is None:
         udp = f"{DEFAULT_UDP_HOST}:{DEFAULT_UDP_PORT}"
     profiles = load_profiles(args.profile)
-    page = _PageServer(args, profiles)
+    page = _PageServer(args, profiles, profile_sources(args.profile))
     config = ServeConfig(
         profiles=profiles,
         udp=parse_host_port(udp, DEFAULT_UDP_HOST) if udp else None,
@@ -48,29 +46,49 @@ def cmd_serve(args: argparse.Namespace) -> int:
         mqtt=args.mqtt,
         forward=args.forward,
         token=args.token,
-        record=Path(args.record) if args.record else default_recording_path(page.settings.recordings),
+        record=Path(args.record) if args.record else None,
+        record_in=None if args.record else page.settings.recordings,
         prefix=args.prefix,
+        max_rate=args.max_rate,
+        allow=_networks(args.allow),
     )
     if not config.profiles:
         say("no --profile given: robots are shown and recorded but not recomputed")
     try:
-        lines = asyncio.run(serve(config, say, on_start=None if args.no_dashboard else page.start_live))
+        finished = asyncio.run(serve(config, say, on_start=None if args.no_dashboard else page.start_live))
     finally:
         page.stop()
-    for line in lines:
+    return _finish(finished)
+
+
+def _networks(texts: list[str] | None) -> tuple:
+    from receiver.live.gate import parse_networks
+
+    try:
+        return tuple(parse_networks(texts or ()))
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+
+
+def _finish(finished) -> int:
+    """Print the summary of a serve run; a run that had to stop fails with its reason."""
+    for line in finished.lines:
         say(line)
+    if finished.failure is not None:
+        raise PodwatchError(f"stopped: {finished.failure}")
     return 0
 
 
 class _PageServer:
     """The dashboard of one command run, started once the receiver listens."""
 
-    def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile]) -> None:
+    def __init__(self, args: argparse.Namespace, profiles: dict[str, Profile], files: dict[str, str] | None = None) -> None:
         from dashboard.settings import Settings, parse_length
         from receiver.live.serve import parse_host_port
 
         self.args = args
         self.profiles = profiles
+        self.files = {name: Path(path) for name, path in (files or {}).items()}  # where each profile was loaded from
         self.server = None
         self.station = None
         if args.dashboard:
@@ -87,16 +105,30 @@ class _PageServer:
 
     def start_live(self, receiver) -> None:
         """Serve the page on the live receiver's hub."""
-        from dashboard.server import start_dashboard
         from dashboard.sources import LiveSource
         from dashboard.tabs import Station
 
-        self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles)
-        self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
+        self.station = Station(live=LiveSource(receiver.hub), profiles=self.profiles, profile_files=self.files)
+        self.server = self._start(self.station)
+
+    def _start(self, station):
+        from dashboard.server import start_dashboard
+
+        from dashboard.settings import DEFAULT_HOST, DEFAULT_PORT
+        from receiver.live.serve import parse_host_port
+
+        try:
+            return start_dashboard(station, self.settings, self.args.dashboard, say)
+        except UsageError as exc:
+            if isinstance(exc.__cause__, OSError) and exc.__cause__.errno == errno.EADDRINUSE:
+                host, port = parse_host_port(self.args.dashboard or f":{DEFAULT_PORT}", DEFAULT_HOST)
+                raise UsageError(f"cannot serve the dashboard on {host}:{port}: port {port} is in use (another "
+                                 "podwatch running?): stop that program, or choose another port with --dashboard "
+                                 "HOST:PORT") from exc.__cause__
+            raise
 
     def start_replay(self, data, speed: float) -> None:
         """Serve the page on a recording: each tab plays a replay of its own from the start at ``speed``."""
-        from dashboard.server import start_dashboard
         from dashboard.sources import ReplaySource
         from dashboard.tabs import Station
 
@@ -107,8 +139,8 @@ class _PageServer:
             source.play()
             return source
 
-        self.station = Station(recording=data, profiles=self.profiles, make_replay=playing)
-        self.server = start_dashboard(self.station, self.settings, self.args.dashboard, say)
+        self.station = Station(recording=data, profiles=self.profiles, make_replay=playing, profile_files=self.files)
+        self.server = self._start(self.station)
 
     def stop(self) -> None:
         """Stop serving the page and every tab's replay."""
@@ -134,11 +166,10 @@ def cmd_demo(args: argparse.Namespace) -> int:
     """
     import asyncio
 
-    from receiver.live.demo import DEMO_FAULTS, SimulatedRobot, demo_profile
+    from receiver.live.demo import DEMO_FAULTS, SimulatedRobot, demo_profile, demo_profile_file
     from receiver.live.serve import ServeConfig, parse_host_port, serve
     from receiver.odometry.faults import parse_faults
 
-    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
     if args.duration is not None and not args.duration > 0:
         raise UsageError(f"--duration must be positive, got {args.duration}")
     profile = demo_profile()
@@ -147,28 +178,28 @@ def cmd_demo(args: argparse.Namespace) -> int:
         profiles={profile.name: profile},
         udp=parse_host_port(args.udp, "127.0.0.1"),
         record=Path(args.record) if args.record else None,
+        max_rate=args.max_rate,
     )
-    page = _PageServer(args, config.profiles)
+    page = _PageServer(args, config.profiles, {profile.name: demo_profile_file()})
     robots: list[SimulatedRobot] = []
 
     def start(receiver) -> None:
         page.start_live(receiver)
         host, port = receiver.udp.address
-        robot = SimulatedRobot(profile, (host, port), args.path, args.rate, args.seed, faults)
+        robot = SimulatedRobot(profile, (host, port), args.path, args.rate, args.seed, faults,
+                               supervisor=receiver.supervisor)
         robot.start()
         robots.append(robot)
         mistakes = ", ".join(args.fault if args.fault is not None else DEMO_FAULTS) or "none"
         say(f"simulated {profile.name} driving {args.path} at {args.rate:g} Hz, mistakes: {mistakes}")
 
     try:
-        lines = asyncio.run(serve(config, say, on_start=start, until=args.duration))
+        finished = asyncio.run(serve(config, say, on_start=start, until=args.duration))
     finally:
         for robot in robots:
             robot.stop()
         page.stop()
-    for line in lines:
-        say(line)
-    return 0
+    return _finish(finished)
 
 
 def cmd_replay(args: argparse.Namespace) -> int:
@@ -193,7 +224,7 @@ def cmd_replay(args: argparse.Namespace) -> int:
         say(f"sent {sent} messages to {args.to}")
         return 0
     if args.dashboard:
-        return _replay_on_page(args, data, cli_profiles)
+        return _replay_on_page(args, data, cli_profiles, profile_sources(args.profile))
     hub = Hub({**data.profiles, **cli_profiles})
     started = time.monotonic()
     count = replay_into_hub(data, hub, args.speed)
@@ -203,16 +234,15 @@ def cmd_replay(args: argparse.Namespace) -> int:
     return 0
 
 
-def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile]) -> int:
+def _replay_on_page(args: argparse.Namespace, data, profiles: dict[str, Profile], files: dict[str, str]) -> int:
     """Replay on the dashboard, playing at --speed, until Ctrl-C."""
     from dashboard.sources import REPLAY_SPEEDS
     from receiver.live.replay import recorded_span_s
 
-    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
     duration_s = recorded_span_s(data)
     if duration_s is None:
         raise UsageError(f"{args.recording}: the recording holds no messages")
-    page = _PageServer(args, profiles)
+    page = _PageServer(args, profiles, files)
     try:
         page.start_replay(data, args.speed if args.speed > 0 else max(REPLAY_SPEEDS))
         say(f"replaying {args.recording} ({duration_s:.1f} s) on the dashboard, from the start in each tab; "
@@ -248,6 +278,14 @@ def _dashboard_options(parser: argparse.ArgumentParser, optional: bool) -> None:
                              "folder of --record, else recordings/)")
 
 
+def _max_rate_option(parser: argparse.ArgumentParser) -> None:
+    from receiver.live.gate import DEFAULT_MAX_RATE  # no sockets: a plain module
+
+    parser.add_argument("--max-rate", type=float, default=DEFAULT_MAX_RATE, metavar="MSG/S",
+                        help=f"per-robot cap: messages beyond it are dropped before decoding and counted "
+                             f"(default {DEFAULT_MAX_RATE:g})")
+
+
 def add_live_commands(sub: argparse._SubParsersAction) -> None:
     """Register ``serve``, ``replay`` and ``demo`` on the program's subparsers."""
     p = sub.add_parser("serve", help="live receiver: listen, recompute, record")
@@ -262,7 +300,12 @@ def add_live_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--forward", action="store_true", help="republish UDP/WebSocket samples and poses to the broker")
     p.add_argument("--prefix", default=DEFAULT_PREFIX, help=f"MQTT topic prefix (default {DEFAULT_PREFIX})")
     p.add_argument("--token", metavar="T", help="WebSocket clients must send this token (?token= or header)")
-    p.add_argument("--record", metavar="FILE", help="recording file (default recordings/podwatch-DATE-TIME.jsonl)")
+    p.add_argument("--record", metavar="FILE",
+                   help="recording file, which must not exist yet (default recordings/podwatch-DATE-TIME.jsonl)")
+    _max_rate_option(p)
+    p.add_argument("--allow", action="append", metavar="CIDR",
+                   help="take UDP and WebSocket traffic only from this network, e.g. 192.168.1.0/24 (repeatable; "
+                        "default: from anywhere)")
     _dashboard_options(p, optional=True)
     p.set_defaults(run=cmd_serve)
 
@@ -285,6 +328,7 @@ def add_live_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--fault", action="append", metavar="NAME",
                    help="a mistake in the robot code, repeatable (default reversed:right)")
     p.add_argument("--duration", type=float, metavar="S", help="stop after this many seconds (default: at Ctrl-C)")
-    p.add_argument("--record", metavar="FILE", help="also record the session to FILE")
+    p.add_argument("--record", metavar="FILE", help="also record the session to FILE (which must not exist yet)")
+    _max_rate_option(p)
     _dashboard_options(p, optional=False)
     p.set_defaults(run=cmd_demo)

@@ -24,7 +24,7 @@ from receiver.formats.recording_writer import RecordingWriter
 from receiver.odometry.faults import FAULT_SYNTAX, parse_faults
 from receiver.odometry.integrate import METHODS, wrap_angle
 from receiver.odometry.recompute import Result, Tracker
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, missing_profile_hint
 from receiver.sim.motion_paths import PATHS
 from receiver.sim.simulate import simulate
 
@@ -89,7 +89,7 @@ class _RobotTotals:
         if self.last is None:
             return text + "; the robot sent no pose to compare"
         return (
-            f"{text}; disagreement at end {self.last[0]:.3f} {unit}, {np.degrees(self.last[1]):.2f} deg; "
+            f"{text}; disagreement at end {self.last[0]:z.3f} {unit}, {np.degrees(self.last[1]):z.2f} deg; "
             f"worst {self.worst:.3f} {unit}"
         )
 
@@ -149,7 +149,8 @@ def cmd_recompute(args: argparse.Namespace) -> int:
                 if robot not in trackers:
                     profile = profiles.get(robot)
                     if profile is None:
-                        warn(f"robot {robot!r} has no profile (give one with --profile); its messages are not recomputed")
+                        hint = missing_profile_hint(robot, [n for n in cli_profiles if n not in trackers])
+                        warn(f"robot {robot!r} has no profile ({hint}); its messages are not recomputed")
                     else:
                         totals[robot] = _RobotTotals(robot, profile)
                     trackers[robot] = Tracker(profile, args.method) if profile else None
@@ -172,7 +173,10 @@ def cmd_recompute(args: argparse.Namespace) -> int:
     for warning in rec.warnings:
         warn(warning)
     if not totals:
-        raise UsageError(f"{args.recording}: no robot in it has a profile; give one with --profile")
+        heard = list(trackers)
+        unused = [n for n in cli_profiles if n not in heard]
+        hint = missing_profile_hint(heard[0], unused) if heard and unused else "give one with --profile"
+        raise UsageError(f"{args.recording}: no robot in it has a profile; {hint}")
     for robot_totals in totals.values():
         print(robot_totals.line(), file=sys.stderr)
     return 0

@@ -9,6 +9,8 @@ offline_commands.py, check_commands.py, compare_command.py and live_commands.py.
 from __future__ import annotations
 
 import argparse
+import logging
+import os
 import sys
 from typing import Sequence
 
@@ -17,7 +19,10 @@ from receiver.cli.check_commands import add_check_commands
 from receiver.cli.compare_command import add_compare_command
 from receiver.cli.live_commands import add_live_commands
 from receiver.cli.offline_commands import add_offline_commands
+from receiver.cli.profile_commands import add_profile_commands
 from receiver.errors import PodwatchError
+
+DEBUG_ENV = "PODWATCH_DEBUG"
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -32,6 +37,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_check_commands(sub)
     add_compare_command(sub)
     add_live_commands(sub)
+    add_profile_commands(sub)
     return parser
 
 
@@ -41,6 +47,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     """
     parser = build_parser()
     args = parser.parse_args(argv)
+    # Log lines of the receiver, the senders and their libraries read like the rest.
+    logging.basicConfig(format="podwatch: %(message)s", level=logging.WARNING, stream=sys.stderr)
     try:
         return args.run(args)
     except PodwatchError as exc:
@@ -51,6 +59,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     except BrokenPipeError:
         return 0
     except OSError as exc:
-        print(f"podwatch: error: {exc.filename or ''}: {exc.strerror}", file=sys.stderr)
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"podwatch: error: {where}{exc.strerror or exc}", file=sys.stderr)
         return 1
+    except Exception as exc:  # our own bug: one line for the user, the traceback on request
+        if os.environ.get(DEBUG_ENV):
+            raise
+        print(f"podwatch: error: internal error ({type(exc).__name__}: {exc}); this is a bug in podwatch: "
+              f"please report it (set {DEBUG_ENV}=1 to see where it happened)", file=sys.stderr)
+        return 70  # EX_SOFTWARE, sysexits.h
 

@@ -9,6 +9,9 @@ What the layers above use:
   team's own signals), ``Failure``, ``Reason``, ``PoseMessage``
 - profile_toml: ``load_profile``, ``profile_from_table``, ``profile_to_table``, ``write_profile``
 - profile_set: ``edited_profile``, ``parse_setting``, ``parse_edit``, ``edits_as_text`` (`--set KEY=VALUE` text)
+- profile_writer: ``write_profile_preserving`` (a user's file, only changed values changed),
+  ``profile_text`` (a clean commented file), ``write_profile_file``
+- starter_profiles: ``starter_profile``, ``starter_text``, ``LAYOUTS`` (``podwatch profile new``)
 - recording: ``read_recording``, ``RecordingStream``, ``RecordingData``
 - recording_writer: ``RecordingWriter``
 - block_decoder: ``worker_pool`` (large files on two cores); csv_writer: ``write``, ``text_cells``

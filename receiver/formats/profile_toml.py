@@ -14,6 +14,7 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
+import msgspec
 import tomli_w
 
 from receiver.errors import ProfileError, describe
@@ -24,6 +25,7 @@ from receiver.odometry.robot import (
     HEADING_UNITS,
     HEADING_ZEROS,
     IMU_MODES,
+    INTEGRATIONS,
     METRES_PER_UNIT,
     ROBOT_NAME_CHARS,
     Y_AXES,
@@ -112,12 +114,14 @@ def profile_from_table(table: dict[str, Any], source: str = "<profile>") -> Prof
     rep = table.get("reported", {})
     if not isinstance(rep, dict):
         raise ProfileError(source, "reported", "expected a table")
-    _no_unknown(rep, {"heading_unit", "heading_positive", "y_axis", "heading_zero"}, source, "reported.")
+    _no_unknown(rep, {"heading_unit", "heading_positive", "y_axis", "heading_zero", "integration"}, source, "reported.")
     reported = Reported(
         heading_unit=_choice(rep, "heading_unit", HEADING_UNITS, source, "reported.", "rad"),
         heading_positive=_choice(rep, "heading_positive", HEADING_POSITIVE, source, "reported.", "ccw"),
         y_axis=_choice(rep, "y_axis", Y_AXES, source, "reported.", "left"),
         heading_zero=_choice(rep, "heading_zero", HEADING_ZEROS, source, "reported.", "x"),
+        # Optional without a default value: absent means "find it out" (the checks do).
+        integration=_choice(rep, "integration", INTEGRATIONS, source, "reported.", "arc") if "integration" in rep else None,
     )
     imu = table.get("imu", {})
     if not isinstance(imu, dict):
@@ -168,8 +172,12 @@ def load_profile(path: str | Path) -> Profile:
 
 
 def profile_to_table(profile: Profile) -> dict[str, Any]:
-    """The profile as a plain table, the shape the TOML file and recordings use."""
-    return {
+    """The profile as a plain table, the shape the TOML file and recordings use.
+
+    ``reported.integration`` appears only when the profile declares it, so a
+    profile without it reads as before everywhere.
+    """
+    table = {
         "name": profile.name,
         "distance_unit": profile.distance_unit,
         "reported": {
@@ -193,6 +201,9 @@ def profile_to_table(profile: Profile) -> dict[str, Any]:
         ],
         "imu": {"mode": profile.imu_mode},
     }
+    if profile.reported.integration is not None:
+        table["reported"]["integration"] = profile.reported.integration
+    return table
 
 
 def dump_profile(profile: Profile) -> str:
@@ -203,3 +214,21 @@ def dump_profile(profile: Profile) -> str:
 def write_profile(profile: Profile, path: str | Path) -> None:
     """Write the profile as a TOML file."""
     Path(path).write_text(dump_profile(profile), encoding="utf-8")
+
+
+def profile_json(profile: Profile) -> bytes:
+    """The profile as one JSON object (``profile_to_table``): what <prefix>/<robot>/profile carries."""
+    return msgspec.json.encode(profile_to_table(profile))
+
+
+def profile_from_json(data: bytes, source: str) -> Profile:
+    """A profile from ``profile_json``'s bytes, validated as a file is; one ProfileError otherwise."""
+    if len(data) > MAX_PROFILE_BYTES:
+        raise ProfileError(source, "(message)", f"over {MAX_PROFILE_BYTES} bytes: a profile is a few hundred")
+    try:
+        table = msgspec.json.decode(data)
+    except (msgspec.MsgspecError, RecursionError) as exc:
+        raise ProfileError(source, "(message)", f"not a JSON profile: {str(exc).splitlines()[0] if str(exc) else exc}") from None
+    if not isinstance(table, dict):
+        raise ProfileError(source, "(message)", f"expected a JSON object, got {describe(table)}")
+    return profile_from_table(table, source)

@@ -90,6 +90,8 @@ class Reason(StrEnum):
     NOT_UTF8 = "not_utf8"
     WRONG_TICKS_LENGTH = "wrong_ticks_length"
     TOO_MANY_ROBOTS = "too_many_robots"
+    OVER_RATE_CAP = "over_rate_cap"  # the robot sent faster than the receiver's per-robot cap
+    SOURCE_NOT_ALLOWED = "source_not_allowed"  # from an address outside the receiver's --allow networks
 
 
 @dataclass(frozen=True)

@@ -9,14 +9,16 @@ header: the caller stamps "rx" and says when it is time to flush.
 
 from __future__ import annotations
 
+import errno
 import gzip
+import os
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import BinaryIO, Iterable, Sequence
 
 import msgspec
 
-from receiver.errors import RecordingError
+from receiver.errors import RecordingError, RecordingExistsError
 from receiver.formats.protocol import Sample
 from receiver.formats.recording import header_line
 from receiver.odometry.robot import Profile
@@ -34,6 +36,64 @@ _LINE_BREAKS_TO_SPACES = bytes.maketrans(b"\r\n", b"  ")
 _CR, _LF = ord("\r"), ord("\n")  # an int operand: ``in`` on bytes takes a quarter of the time it takes with b"\n"
 
 
+class _WholeWrites:
+    """A file descriptor that writes each piece whole or raises.
+
+    A plain file object (and gzip on top of one) may write part of a piece
+    when the disk fills and drop the rest unseen; this loops over short
+    writes, so the bytes on disk are always a prefix of the stream.
+    """
+
+    def __init__(self, fd: int, name: str) -> None:
+        self._fd = fd
+        self.name = name  # gzip puts the file's name in its header, as with a plain file object
+        self.closed = False
+
+    def write(self, data: bytes | bytearray | memoryview) -> int:
+        """Write every byte of ``data``; an OSError (disk full, device gone) leaves a prefix on disk."""
+        if self.closed:  # the descriptor's number may belong to another file by now
+            raise OSError(errno.EBADF, "the recording was closed")
+        written, size = 0, len(data)
+        # Views released even when a write fails: one left alive (by the error's
+        # traceback) would keep the caller's bytearray from ever changing size.
+        with memoryview(data) as whole:
+            while written < size:
+                with whole[written:] as rest:
+                    written += os.write(self._fd, rest)
+        return size
+
+    def flush(self) -> None:
+        """Nothing is buffered here."""
+
+    def close(self) -> None:
+        """Close the descriptor; a second call does nothing."""
+        if not self.closed:
+            self.closed = True
+            os.close(self._fd)
+
+
+def _exists(path: str) -> RecordingExistsError:
+    return RecordingExistsError(f"{path}: already exists; podwatch never overwrites a recording: give another name")
+
+
+def refuse_existing(path: str | Path) -> None:
+    """RecordingExistsError when ``path`` is already there: a check before a long start,
+    which creating the file exclusively (``RecordingWriter``) makes certain."""
+    if os.path.lexists(path):
+        raise _exists(str(path))
+
+
+def create_exclusively(path: str) -> int:
+    """A new file at ``path``, opened for writing; RecordingExistsError when it exists,
+    RecordingError when it cannot be made."""
+    try:
+        return os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL | os.O_CLOEXEC, 0o644)
+    except FileExistsError:
+        raise _exists(path) from None
+    except OSError as exc:
+        raise RecordingError(f"{path}: cannot write: {exc.strerror}") from exc
+
+
 class RecordingWriter:
     """Appends received messages to a recording, one JSON line each plus "rx".
 
@@ -46,7 +106,9 @@ class RecordingWriter:
     rest. A path ending in ``.gz`` (or ``compress=True``) writes gzip,
     sync-flushed so that a file cut by a killed receiver still decompresses up
     to the last flush. There is no fsync: a killed process loses nothing the
-    operating system was given.
+    operating system was given. The file is created exclusively: an existing
+    one is refused with a RecordingError. An OSError from ``write``,
+    ``flush`` or ``close`` reaches the caller, who then calls ``abandon``.
     """
 
     def __init__(
@@ -60,12 +122,9 @@ class RecordingWriter:
         self.compress = self.path.endswith(".gz") if compress is None else compress
         if created is None:
             created = datetime.now(timezone.utc).isoformat(timespec="milliseconds")
-        try:
-            raw = open(self.path, "wb")
-        except OSError as exc:
-            raise RecordingError(f"{self.path}: cannot write: {exc.strerror}") from exc
+        raw = _WholeWrites(create_exclusively(self.path), self.path)
         # mtime=0 keeps the gzip bytes reproducible; "created" carries the time.
-        self._file: BinaryIO = (
+        self._file: BinaryIO | _WholeWrites = (
             gzip.GzipFile(fileobj=raw, mode="wb", compresslevel=_GZIP_LEVEL, mtime=0) if self.compress else raw
         )
         self._raw = raw
@@ -76,8 +135,12 @@ class RecordingWriter:
         self._pending = bytearray()
         self._last_flush: float | None = None
         self.message_count = 0
-        self._file.write(header_line(profiles, created))
-        self._file.flush()
+        try:
+            self._file.write(header_line(profiles, created))
+            self._file.flush()
+        except OSError as exc:
+            self.abandon()
+            raise RecordingError(f"{self.path}: cannot write: {exc.strerror}") from exc
 
     def write(
         self, samples: Sequence[Sample], rx: float | None = None, raws: Sequence[bytes | None] | None = None
@@ -140,13 +203,24 @@ class RecordingWriter:
 
     def close(self) -> None:
         """Write out what is buffered and close the file; a second call does nothing."""
-        if self._file.closed:
+        if self._raw.closed:
             return
         try:
             self._drain()
             self._file.close()
         finally:
             self._raw.close()
+
+    def abandon(self) -> None:
+        """Close the file without writing anything more (after a failed write, say):
+        what is on disk stays as it is, a prefix of the stream that reads back."""
+        self._pending = bytearray()
+        self._raw.close()
+        if self._file is not self._raw:
+            try:
+                self._file.close()  # gzip's trailer cannot reach the closed descriptor
+            except OSError:
+                pass
 
     def __enter__(self) -> RecordingWriter:
         return self

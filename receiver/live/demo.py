@@ -5,7 +5,9 @@ real time by replay.send_paced, one datagram per message: each new run goes on
 from the last one's seq and clock and starts with ``reset`` (the robot code
 set its pose), so the receiver re-anchors instead of integrating a jump.
 Each message carries two signals of the robot code's own (``own_signals``).
-The motion and the mistakes come from simulate.py; this module never decodes.
+The stream runs under the receiver's ``Supervisor``: a failure is logged and
+shown, and the robot goes on from where it was. The motion and the mistakes
+come from simulate.py; this module never decodes.
 """
 
 from __future__ import annotations
@@ -19,6 +21,7 @@ import numpy as np
 
 from receiver.formats.profile_toml import profile_from_table
 from receiver.live.replay import send_paced
+from receiver.live.supervise import Supervisor
 from receiver.odometry.counts import SEQ_MODULUS
 from receiver.odometry.faults import Faults
 from receiver.odometry.robot import Profile
@@ -27,11 +30,12 @@ from receiver.sim.simulate import Run, simulate
 DEMO_FAULTS = ("reversed:right",)  # the robot code reads its right wheel backwards
 DEMO_PATH = "figure-eight"
 RUN_S = 120.0  # one simulated run; the next one follows on
+DEMO_PROFILE = "data/practice-bot.toml"
 
 
 def demo_profile() -> Profile:
     """The practice robot's profile, shipped inside the package (receiver/data)."""
-    text = resources.files("receiver").joinpath("data/practice-bot.toml").read_text(encoding="utf-8")
+    text = resources.files("receiver").joinpath(DEMO_PROFILE).read_text(encoding="utf-8")
     return profile_from_table(tomllib.loads(text), "practice-bot (built in)")
 
 
@@ -46,6 +50,11 @@ def own_signals(run: Run) -> list[dict[str, float]]:
     return [{"drive.speed": s, "turn.rate": r} for s, r in zip(np.round(speed, 3).tolist(), np.round(rate, 2).tolist())]
 
 
+def demo_profile_file() -> str:
+    """Where the demo's profile file is (the page's "download profile" keeps its comments)."""
+    return str(resources.files("receiver").joinpath(DEMO_PROFILE))
+
+
 class SimulatedRobot:
     """Streams a simulated robot to ``address`` (host, port) over UDP from a thread."""
 
@@ -58,6 +67,7 @@ class SimulatedRobot:
         seed: int = 1,
         faults: Faults = Faults(),
         run_s: float = RUN_S,
+        supervisor: Supervisor | None = None,
     ) -> None:
         self.profile = profile
         self.url = f"udp://{address[0]}:{address[1]}"
@@ -66,6 +76,8 @@ class SimulatedRobot:
         self.seed = seed
         self.faults = faults
         self.run_s = run_s
+        self.supervisor = supervisor
+        self._next = (0, None, 0)  # the next run's first seq, its clock's start and its number
         self._loop = asyncio.new_event_loop()
         self._task: asyncio.Task | None = None
         self._thread = threading.Thread(target=self._run, name=f"podwatch-robot-{profile.name}", daemon=True)
@@ -81,14 +93,16 @@ class SimulatedRobot:
         self._loop.close()
 
     def _run(self) -> None:
-        self._task = self._loop.create_task(self._stream())
+        name = f"simulated robot {self.profile.name}"
+        stream = self._stream() if self.supervisor is None else self.supervisor.run_task(name, self._stream)
+        self._task = self._loop.create_task(stream)
         try:
             self._loop.run_until_complete(self._task)
         except asyncio.CancelledError:
             pass
 
     async def _stream(self) -> None:
-        seq0, t0, k = 0, None, 0
+        seq0, t0, k = self._next
         while True:
             run = simulate(self.profile, self.path, self.rate_hz, self.run_s, self.seed + k, self.faults)
             shift = 0.0 if t0 is None else t0 - float(run.t[0])
@@ -102,3 +116,4 @@ class SimulatedRobot:
             seq0 = (seq0 + len(run.t)) % SEQ_MODULUS
             t0 = float(run.t[-1]) + shift + 1.0 / self.rate_hz
             k += 1
+            self._next = (seq0, t0, k)

@@ -1,15 +1,18 @@
 """The hub: every robot's session behind one ingest queue.
 
 Owns the receiver-level rules the pure decoder cannot apply (the number of
-counts each robot's profile expects, the robot limit), handing accepted
-samples to the recorder and to the sessions, and telling listeners. The
-transports call ``ingest`` from their own threads; it only queues.
-``process`` does the work in small batches. It never opens a socket and
-never reads a clock: times are arguments.
+counts each robot's profile expects, the robot limit and the freeing of idle
+slots, the tallies of the transports' gates), handing accepted samples to
+the recorder and to the sessions, and telling listeners. The transports
+call ``ingest`` from their own threads; it only queues, and the queue is
+bounded (``has_room``). ``process`` does the work in small batches. A
+recorder that fails stops recording, never receiving. It never opens a
+socket and never reads a clock: times are arguments.
 """
 
 from __future__ import annotations
 
+import logging
 import math
 import threading
 from collections import Counter
@@ -18,19 +21,38 @@ from typing import Callable, Protocol, Sequence
 import numpy as np
 
 from receiver.formats.protocol import Failure, PoseMessage, Reason, Sample
-from receiver.live.ring_buffer import Cut
+from receiver.live.gate import DEFAULT_MAX_RATE, Gate, Network
+from receiver.live.health import Health
+from receiver.live.refusals import RefusalLog
+from receiver.live.ring_buffer import SMALL_BLOCK_ROWS, Cut
 from receiver.live.session import (
     DEFAULT_MAX_ROWS,
     DEFAULT_QUIET_AFTER_S,
     DEFAULT_WINDOW_S,
     LinkEvent,
     LinkState,
+    LinkStats,
     RobotSnapshot,
     Session,
 )
 from receiver.odometry.robot import Profile
 
 DEFAULT_MAX_ROBOTS = 64  # DESIGN.md, wire protocol: 64 robots at once by default
+IDLE_SLOT_S = 10.0  # DESIGN.md: a robot without a profile that is quiet this long frees its slot
+# Messages waiting between the transports and ``process``: beyond this a
+# WebSocket connection stops being read and MQTT's own bounded queue fills,
+# so a flood costs them, not the receiver's memory. Far more than any real
+# robots send between two passes of the pump (at most a few hundred).
+MAX_BACKLOG = 20_000
+FLOOD_SHOWN_S = 5.0  # a robot over the rate cap is named on the page this long after its last refusal
+MAX_RETIRED = 1024  # robots whose slot was freed, kept for the summary
+# Rows the robots without a profile share (about 39 MB at 97 bytes a row,
+# in blocks of SMALL_BLOCK_ROWS): one of them keeps 400 s at 1 kHz, and
+# names invented under the rate cap cannot make the receiver hold more than
+# this between them. Robots named in a profile are the user's own and keep
+# DEFAULT_MAX_ROWS each.
+UNPROFILED_ROWS = 400_000
+log = logging.getLogger("podwatch.hub")
 
 
 class Recorder(Protocol):
@@ -43,6 +65,9 @@ class Recorder(Protocol):
 
     def flush(self, now: float | None = None) -> bool:
         """Push buffered lines on, at most once per flush interval of ``now``; True when it did."""
+
+    def abandon(self) -> None:
+        """Close the file without writing more, after ``write`` or ``flush`` raised an OSError."""
 
 
 # Listener(accepted samples with their source, latest pose per updated robot)
@@ -59,6 +84,7 @@ class Hub:
     the UDP loop right after it took a batch; a lock keeps them apart)
     applies the receiver-level rules, records, recomputes and tells
     listeners. Robots with a profile get a session up front, in WAITING.
+    ``health`` is what the page and the summary show of the receiver itself.
     """
 
     def __init__(
@@ -71,9 +97,14 @@ class Hub:
         max_rows: int = DEFAULT_MAX_ROWS,
         quiet_after_s: float = DEFAULT_QUIET_AFTER_S,
         method: str = "arc",
+        max_rate: float = DEFAULT_MAX_RATE,
+        allow: Sequence[Network] = (),
     ) -> None:
         self.profiles = dict(profiles or {})
         self.recorder = recorder
+        self.health = Health()
+        self.max_rate = max_rate
+        self.allow = tuple(allow)
         self.max_robots = max_robots
         self.window_s = window_s
         self.max_rows = max_rows
@@ -82,8 +113,11 @@ class Hub:
         self.errors: Counter = Counter()  # every refused message, by reason
         self.last_error: str | None = None
         self.sessions: dict[str, Session] = {}
+        self.retired: dict[str, LinkStats] = {}  # robots whose slot was freed, for the summary
+        self.retired_dropped = 0  # robots past MAX_RETIRED, not listed
         self._listeners: list[tuple[Listener | RawsListener, bool]] = []
         self._pending: list[tuple[list[Sample], list[Failure], float, str, list[bytes] | None]] = []
+        self._backlog = 0  # messages in _pending
         self._pending_lock = threading.Lock()
         self._state_lock = threading.RLock()
         self._has_pending = threading.Event()
@@ -91,6 +125,9 @@ class Hub:
         # while now is within quiet_after_s of it, none can have gone quiet,
         # and ``process`` skips the walk over every session (7 us for 20).
         self._oldest_live_rx = math.inf
+        self._gates: list[_GateTally] = []
+        self._refusals = RefusalLog(log)
+        self._next_slot_scan = -math.inf
         for name, profile in self.profiles.items():
             self.sessions[name] = self._new_session(name, profile)
 
@@ -125,10 +162,24 @@ class Hub:
         assert raws is None or len(raws) == len(samples), "raws must pair up with samples"
         with self._pending_lock:
             self._pending.append((samples, failures, rx, source, raws))
+            if wake:  # a caller that processes right after (UDP) adds at most a pass's worth
+                self._backlog += len(samples) + len(failures)
         # Set only when clear (``process`` clears it under the same lock, after
         # taking the queue): Event.set is pure Python, as dear as a decode.
         if wake and not self._has_pending.is_set():
             self._has_pending.set()
+
+    def has_room(self) -> bool:
+        """False while MAX_BACKLOG messages wait for ``process``: a transport that can wait
+        (a WebSocket connection, the MQTT link) waits before it ingests more."""
+        return self._backlog < MAX_BACKLOG
+
+    def new_gate(self) -> Gate:
+        """A gate for one transport (its own thread), with this hub's rate cap and allowed
+        networks; ``check`` counts and logs what it refused."""
+        gate = Gate(self.max_rate, self.allow)
+        self._gates.append(_GateTally(gate))
+        return gate
 
     def wait(self, timeout: float) -> bool:
         """Block until something is queued (True) or the timeout passes (False)."""
@@ -138,6 +189,7 @@ class Hub:
         """Apply everything queued since the last call; returns samples accepted."""
         with self._pending_lock:
             batch, self._pending = self._pending, []
+            self._backlog = 0
             if self._has_pending.is_set():  # Event.clear is pure Python; the UDP loop never sets it
                 self._has_pending.clear()
         with self._state_lock:
@@ -157,7 +209,7 @@ class Hub:
                     robot = sample.robot
                     session = sessions.get(robot)
                     # a known robot with the right number of counts passes _admit unchanged
-                    if (session is None or len(sample.ticks) != session.n_wheels) and not self._admit(sample):
+                    if (session is None or len(sample.ticks) != session.n_wheels) and not self._admit(sample, now):
                         continue
                     sample.rx = rx
                     group = groups.get(robot)
@@ -168,9 +220,13 @@ class Hub:
                     accepted.append((sample, source))
                     kept.append(sample)
                     kept_raws.append(None if raws is None else raws[k])
-            if self.recorder is not None:
-                self.recorder.write(kept, raws=kept_raws)
-                self.recorder.flush(now)
+            recorder = self.recorder
+            if recorder is not None:
+                try:
+                    recorder.write(kept, raws=kept_raws)
+                    recorder.flush(now)
+                except OSError as exc:
+                    self._stop_recording(recorder, exc)
             updates: dict[str, PoseMessage] = {}
             oldest_live_rx = self._oldest_live_rx
             for robot, group in groups.items():
@@ -191,16 +247,24 @@ class Hub:
                         listener(accepted, updates)
             return len(accepted)
 
-    def _admit(self, sample: Sample) -> bool:
-        """The receiver-level rules: robot limit and ticks length."""
-        session = self.sessions.get(sample.robot)
+    def _admit(self, sample: Sample, now: float) -> bool:
+        """The receiver-level rules: robot limit (freeing idle slots) and ticks length."""
+        robot = sample.robot
+        session = self.sessions.get(robot)
         if session is None:
-            if len(self.sessions) >= self.max_robots:
-                self._refuse(
-                    Failure(Reason.TOO_MANY_ROBOTS, f"robot {sample.robot!r} refused: already {self.max_robots} robots")
+            if len(self.sessions) >= self.max_robots and not self._free_idle_slots(now):
+                why = f"robot {robot!r} refused: already {self.max_robots} robots"
+                self._refuse(Failure(Reason.TOO_MANY_ROBOTS, why))
+                self._refusals.note(
+                    Reason.TOO_MANY_ROBOTS, robot, 1, now,
+                    f"{why} (a robot without a profile frees its slot after {IDLE_SLOT_S:g} s of silence)",
                 )
                 return False
-            session = self.sessions[sample.robot] = self._new_session(sample.robot, None)
+            session = self.sessions[robot] = self._new_session(robot, None)
+            self._share_rows()
+            stats = self.retired.pop(robot, None)
+            if stats is not None:  # back after its slot was freed: its counts go on
+                session.stats = stats
         if session.n_wheels is None and sample.ticks:
             session.n_wheels = len(sample.ticks)
         if len(sample.ticks) != session.n_wheels:
@@ -209,6 +273,111 @@ class Hub:
             self._refuse(Failure(Reason.WRONG_TICKS_LENGTH, detail, sample.robot))
             return False
         return True
+
+    def _free_idle_slots(self, now: float) -> bool:
+        """Retire every robot without a profile quiet for IDLE_SLOT_S; True when one was.
+
+        Looked for at most every 0.1 s of ``now``: a flood of new names
+        would otherwise walk every session for each of its messages."""
+        if now < self._next_slot_scan:
+            return False
+        self._next_slot_scan = now + 0.1
+        idle = [
+            name for name, session in self.sessions.items()
+            if session.profile is None and now - session.stats.last_rx > IDLE_SLOT_S  # NaN: admitted in this batch
+        ]
+        for name in idle:
+            self.retired[name] = self.sessions.pop(name).stats
+            log.info("robot %r sent nothing for %g s: its slot is free", name, IDLE_SLOT_S)
+        while len(self.retired) > MAX_RETIRED:
+            del self.retired[next(iter(self.retired))]
+            self.retired_dropped += 1
+        if idle:
+            self._share_rows()
+        return bool(idle)
+
+    def adopt_profile(self, profile: Profile) -> bool:
+        """Recompute ``profile.name`` with ``profile`` from its next sample on, unless a profile
+        was given for it here (a local one wins); True when it was adopted. The robot's link
+        counts carry on; rows received before it, without a recompute, are let go."""
+        robot = profile.name
+        with self._state_lock:
+            if robot in self.profiles:
+                return False
+            old = self.sessions.get(robot)
+            if old is None and len(self.sessions) >= self.max_robots:
+                return False
+            self.profiles[robot] = profile
+            session = self.sessions[robot] = self._new_session(robot, profile)
+            if old is not None:
+                session.stats = old.stats
+                session.state = old.state
+            self._share_rows()
+            return True
+
+    def _share_rows(self) -> None:
+        """Give each robot without a profile its share of UNPROFILED_ROWS (a small block's
+        worth at least, this hub's max_rows at most)."""
+        unprofiled = [session for session in self.sessions.values() if session.profile is None]
+        if unprofiled:
+            each = min(self.max_rows, max(SMALL_BLOCK_ROWS, UNPROFILED_ROWS // len(unprofiled)))
+            for session in unprofiled:
+                session.ring.max_rows = each
+
+    def _stop_recording(self, recorder: Recorder, exc: OSError) -> None:
+        """A write or flush failed (disk full, device gone): stop recording, keep receiving."""
+        reason = exc.strerror or str(exc)
+        self.recorder = None
+        recorder.abandon()
+        self.health.stop_recording(reason)
+        log.error("recording stopped: %s (%s); receiving goes on, what was written stays readable",
+                  reason, getattr(recorder, "path", "the recording"))
+
+    def _count_gate(self, tally: _GateTally, now: float) -> None:
+        """Count and log what a transport's gate refused since the last look."""
+        gate = tally.gate
+        tally.seen = gate.refused
+        over, tally.over = tally.over, dict(gate.over_cap)  # copies: the transport's thread goes on writing
+        for robot, n in tally.over.items():
+            n -= over.get(robot, 0)
+            if n <= 0:
+                continue
+            robot = robot or "(no robot name)"
+            self.errors[Reason.OVER_RATE_CAP] += n
+            session = self.sessions.get(robot)
+            if session is not None:
+                session.stats.errors[Reason.OVER_RATE_CAP] += n
+            why = f"robot {robot!r} is over the rate cap of {self.max_rate:g} messages/s: the rest are dropped"
+            self._refusals.note(Reason.OVER_RATE_CAP, robot, n, now, why)
+            self.last_error = f"{Reason.OVER_RATE_CAP}: {why}"
+        refused, tally.refused = tally.refused, dict(gate.not_allowed)
+        for host, n in tally.refused.items():
+            n -= refused.get(host, 0)
+            if n > 0:
+                self.errors[Reason.SOURCE_NOT_ALLOWED] += n
+                why = f"refused traffic from {host}: not in the allowed networks (--allow)"
+                self._refusals.note(Reason.SOURCE_NOT_ALLOWED, host, n, now, why)
+        self._show_refusals(now)
+
+    def _show_refusals(self, now: float) -> None:
+        flooding = self._refusals.recent(Reason.OVER_RATE_CAP, now, FLOOD_SHOWN_S)
+        text = ", ".join(f"{name} ({n:,} dropped)" for name, n in sorted(flooding.items()))
+        self.health.set_problem(
+            Reason.OVER_RATE_CAP, f"over the rate cap of {self.max_rate:g} messages/s: {text}" if text else None
+        )
+        barred = self._refusals.recent(Reason.SOURCE_NOT_ALLOWED, now, math.inf)
+        text = ", ".join(f"{host} ({n:,})" for host, n in sorted(barred.items()))
+        self.health.set_note(Reason.SOURCE_NOT_ALLOWED, f"refused, not in --allow: {text}" if text else None)
+
+    def check(self, now: float) -> None:
+        """Once a second or so (the pump), and at the end: count what the gates refused
+        (not in ``process``, which runs for every pass of the UDP loop), and stop naming a
+        robot as over the rate cap FLOOD_SHOWN_S after its last refusal."""
+        with self._state_lock:
+            for tally in self._gates:
+                if tally.gate.refused != tally.seen:
+                    self._count_gate(tally, now)
+            self._show_refusals(now)
 
     def _refuse(self, failure: Failure) -> None:
         self.errors[failure.reason] += 1
@@ -251,5 +420,15 @@ class Hub:
         with self._state_lock:
             held = self.sessions[robot].cut(since_rx)
         return held.rows()
+
+
+class _GateTally:
+    """A transport's gate and what the hub has counted of it so far."""
+
+    def __init__(self, gate: Gate) -> None:
+        self.gate = gate
+        self.seen = 0
+        self.over: dict[str, int] = {}
+        self.refused: dict[str, int] = {}
 
 

@@ -16,15 +16,25 @@ import threading
 import numpy as np
 
 from receiver.formats.protocol import Sample
-from receiver.live.ring_buffer import PendingRows, RingBuffer
+from receiver.live.ring_buffer import SMALL_BLOCK_ROWS, PendingRows, RingBuffer
 from receiver.live.signal_history import Signals, SignalStore, by_name
 from receiver.odometry.columns import Columns
 
-# Long enough for a guided check done at a walking pace and for the longest
-# diagnosis window the page offers; bounded so a 1 kHz robot costs at most
-# about 15 MB (four wheels: 13 numbers a row).
-DEFAULT_RAW_WINDOW_S = 180.0
-DEFAULT_RAW_MAX_ROWS = 180_000
+# As long as the page's longest window (dashboard/settings.py WINDOWS_S), so
+# that the profile editor recomputes the whole window shown, and long enough
+# for a guided check at a walking pace and the longest diagnosis window.
+DEFAULT_RAW_WINDOW_S = 600.0
+DEFAULT_RAW_MAX_ROWS = 600_000
+# Robots kept: twice the hub's robot limit, since the hub frees the slots of
+# silent robots without a profile and new names take them. Past it, a new
+# robot takes the place of the one heard least recently, so names invented
+# by a sender cannot grow this without bound (each robot costs a block at least).
+DEFAULT_RAW_MAX_ROBOTS = 128
+# Rows every robot shares (54 MB for three wheels, tests/bench/bench_workbench.py,
+# in blocks of SMALL_BLOCK_ROWS): one robot at 1 kHz or four at 200 Hz keep
+# the whole 600 s, two at 1 kHz five minutes each, and names invented under
+# the rate cap cannot grow this past it.
+DEFAULT_RAW_TOTAL_ROWS = 600_000
 _FLUSH_ROWS = 256
 _FLOAT_COLUMNS = (("rx", None), ("t", None), ("pose", 3), ("imu", None), ("loop", None))
 _NAN3 = (math.nan, math.nan, math.nan)
@@ -35,10 +45,11 @@ class _RobotRaw:
 
     def __init__(self, n_wheels: int, window_s: float, max_rows: int) -> None:
         self.n_wheels = n_wheels
+        self.last_rx: float | None = None  # the newest sample's rx, for choosing the robot to forget
         self.ring = RingBuffer(
             {"rx": (float, None), "seq": (np.int64, None), "t": (float, None), "ticks": (np.int64, n_wheels),
              "pose": (float, 3), "imu": (float, None), "loop": (float, None), "reset": (bool, None)},
-            window_s=window_s, max_rows=max_rows,
+            window_s=window_s, max_rows=max_rows, block_rows=SMALL_BLOCK_ROWS,
         )
         # Each row: its floats as _FLOAT_COLUMNS, then seq, reset and the counts as integers.
         self.pending = PendingRows(self.ring, _FLOAT_COLUMNS, (("seq", None), ("reset", None), ("ticks", n_wheels)),
@@ -53,9 +64,14 @@ class RawHistory:
     to read from another thread than the one feeding it.
     """
 
-    def __init__(self, window_s: float = DEFAULT_RAW_WINDOW_S, max_rows: int = DEFAULT_RAW_MAX_ROWS) -> None:
+    def __init__(
+        self, window_s: float = DEFAULT_RAW_WINDOW_S, max_rows: int = DEFAULT_RAW_MAX_ROWS,
+        max_robots: int = DEFAULT_RAW_MAX_ROBOTS, total_rows: int = DEFAULT_RAW_TOTAL_ROWS,
+    ) -> None:
         self.window_s = window_s
         self.max_rows = max_rows
+        self.max_robots = max_robots
+        self.total_rows = total_rows
         self._robots: dict[str, _RobotRaw] = {}
         self._signals = SignalStore(window_s)
         self._lock = threading.Lock()
@@ -68,7 +84,13 @@ class RawHistory:
                 if raw is None or raw.n_wheels != len(sample.ticks):
                     # A new robot, or one the hub now expects another number
                     # of counts from: its old rows cannot share columns.
+                    if raw is None and len(robots) >= self.max_robots:
+                        del robots[min(robots, key=lambda name: robots[name].last_rx or -math.inf)]
                     raw = robots[sample.robot] = _RobotRaw(len(sample.ticks), self.window_s, self.max_rows)
+                    each = min(self.max_rows, max(SMALL_BLOCK_ROWS, self.total_rows // len(robots)))
+                    for other in robots.values():
+                        other.ring.max_rows = each
+                raw.last_rx = sample.rx
                 # the row, as _FLOAT_COLUMNS and then seq, reset and the counts (inline: this runs per sample)
                 pose = sample.pose if sample.pose is not None else _NAN3
                 pending = raw.pending

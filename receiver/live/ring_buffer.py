@@ -20,6 +20,10 @@ import numpy as np
 # 4096 rows of a session (97 bytes a row) are 0.4 MB: a robot costs at least
 # that, and a 1 kHz robot adds a block every 4 s (a few microseconds).
 BLOCK_ROWS = 4096
+# For rings that many robots may share a budget of rows between (robots
+# without a profile, raw samples): the memory a ring holds past its cap is
+# at most a block, and many rings of a few blocks each add up.
+SMALL_BLOCK_ROWS = 1024
 
 
 class RingBuffer:

@@ -13,15 +13,16 @@ from collections import Counter
 from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass, field, replace
 from enum import Enum
+from typing import Sequence
 
 import numpy as np
 
-from receiver.formats.protocol import PoseMessage, Sample
-from receiver.live.ring_buffer import Cut, PendingRows, RingBuffer
+from receiver.formats.protocol import PoseMessage, Reason, Sample
+from receiver.live.ring_buffer import BLOCK_ROWS, SMALL_BLOCK_ROWS, Cut, PendingRows, RingBuffer
 from receiver.odometry.columns import Columns, columns_from_samples
 from receiver.odometry.counts import ACCEPTED, SEQ_MODULUS, SampleKind, classify
 from receiver.odometry.recompute import Result, Tracker, loop_periods
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, missing_profile_hint
 
 DEFAULT_WINDOW_S = 600.0
 DEFAULT_QUIET_AFTER_S = 1.0
@@ -144,7 +145,9 @@ class Session:
         self.n_wheels: int | None = len(profile.wheels) if profile is not None else None
         self.state = LinkState.WAITING
         self.stats = LinkStats()
-        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows)
+        # a robot without a profile shares its rows with others (Hub): small blocks
+        block_rows = BLOCK_ROWS if profile is not None else SMALL_BLOCK_ROWS
+        self.ring = RingBuffer(_RING_FIELDS, window_s=window_s, max_rows=max_rows, block_rows=block_rows)
         self._last: tuple[int, float] | None = None  # last accepted (seq, t)
         self._last_rx = np.nan
         self._jitter_s: float | None = None
@@ -361,14 +364,37 @@ def pose_message(robot: str, result: Result) -> PoseMessage:
                        position_error=float(result.position_error[-1]), heading_error=float(result.heading_error[-1]))
 
 
-def summary_line(snap: RobotSnapshot, unit: str | None) -> str:
-    """One line per robot for the end of ``serve`` and ``replay``."""
-    errors = sum(snap.errors.values())
+def unheard_profiles(snapshots: dict[str, RobotSnapshot]) -> list[str]:
+    """The robots a profile was given for that have sent nothing: a robot without a profile
+    may be one of them under another name."""
+    return [name for name, snap in snapshots.items() if snap.has_profile and snap.messages == 0]
+
+
+def summary_of_stats(robot: str, stats: LinkStats) -> str:
+    """The summary line of a robot whose slot was freed: its link counts only."""
+    capped = stats.errors.get(Reason.OVER_RATE_CAP, 0)
+    errors = sum(stats.errors.values()) - capped
+    return (
+        f"{robot}: {stats.messages} messages, {stats.gaps} gaps, {stats.duplicates} duplicates, {stats.late} late, "
+        f"{errors} decode errors{f', {capped} over the rate cap' if capped else ''}; no profile, slot freed after "
+        "its silence"
+    )
+
+
+def summary_line(snap: RobotSnapshot, unit: str | None, unheard: Sequence[str] = ()) -> str:
+    """One line per robot for the end of ``serve`` and ``replay``; ``unheard`` names the
+    profiles given for robots that sent nothing (see ``unheard_profiles``)."""
+    capped = snap.errors.get(Reason.OVER_RATE_CAP, 0)
+    errors = sum(snap.errors.values()) - capped
     text = (
         f"{snap.robot}: {snap.messages} messages, {snap.gaps} gaps, {snap.duplicates} duplicates, "
         f"{snap.late} late, {errors} decode errors"
     )
+    if capped:
+        text += f", {capped} over the rate cap"
     if not snap.has_profile:
+        if unheard:
+            return text + f"; no profile, not recomputed: {missing_profile_hint(snap.robot, unheard)}"
         return text + "; no profile, not recomputed"
     if np.isfinite(snap.position_error):
         return text + (

@@ -55,24 +55,60 @@ def _arc_factors(dth: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return a, b
 
 
-def local_displacement(delta: np.ndarray, method: str = "arc") -> tuple[np.ndarray, np.ndarray]:
-    """Translation (lx, ly), each (...), in the frame of the old heading, for body deltas (..., 3)."""
+def _over_loops(lx: np.ndarray, ly: np.ndarray, dth: np.ndarray, loops: np.ndarray, method: str) -> tuple[np.ndarray, np.ndarray]:
+    """(lx, ly) of a step that the robot took as ``loops`` equal steps of ``method``.
+
+    A sample that arrives after lost ones carries the counts of several of
+    the robot's loops. Taken as k equal steps of the twist / k, Euler moves
+    by (dx + i dy) / k * sum_j e^(i j d) with d = dth / k, midpoint by the
+    same turned by d / 2; the sum is e^(i (k - 1) d / 2) sin(k d / 2) / sin(d / 2).
+    The arc needs nothing: k arcs of one twist are one arc.
+    """
+    k = np.asarray(loops, dtype=float)
+    several = k > 1
+    if method == "arc" or not several.any():
+        return lx, ly
+    d = np.where(several, dth / k, 0.0)
+    half = np.sin(0.5 * d)
+    ratio = np.where(half != 0.0, np.sin(0.5 * k * d) / np.where(half != 0.0, half, 1.0), k) / k
+    turn = 0.5 * (k - 1.0) * d + (0.5 * d if method == "midpoint" else 0.0)
+    px, py = lx, ly
+    if method == "midpoint":
+        # The plain midpoint step already turned by dth / 2: undo it first.
+        c, s = np.cos(0.5 * dth), np.sin(0.5 * dth)
+        px, py = c * lx + s * ly, -s * lx + c * ly
+    c, s = ratio * np.cos(turn), ratio * np.sin(turn)
+    return np.where(several, c * px - s * py, lx), np.where(several, s * px + c * py, ly)
+
+
+def local_displacement(
+    delta: np.ndarray, method: str = "arc", loops: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Translation (lx, ly), each (...), in the frame of the old heading, for body deltas (..., 3).
+
+    ``loops`` (...), when given, is how many of the robot's loops each step
+    spans (see ``_over_loops``); None is one each.
+    """
     delta = np.asarray(delta, dtype=float)
     dx, dy, dth = delta[..., 0], delta[..., 1], delta[..., 2]
     if method == "euler":
-        return dx.copy(), dy.copy()
-    if method == "midpoint":
+        lx, ly = dx.copy(), dy.copy()
+    elif method == "midpoint":
         c, s = np.cos(dth / 2.0), np.sin(dth / 2.0)
-        return c * dx - s * dy, s * dx + c * dy
-    if method == "arc":
+        lx, ly = c * dx - s * dy, s * dx + c * dy
+    elif method == "arc":
         a, b = _arc_factors(dth)
         return a * dx - b * dy, b * dx + a * dy
-    raise ValueError(f"unknown integration method {method!r}, expected one of {', '.join(METHODS)}")
+    else:
+        raise ValueError(f"unknown integration method {method!r}, expected one of {', '.join(METHODS)}")
+    return (lx, ly) if loops is None else _over_loops(lx, ly, dth, loops, method)
 
 
-def _moved(delta: np.ndarray, heading: np.ndarray, method: str) -> tuple[np.ndarray, np.ndarray]:
+def _moved(
+    delta: np.ndarray, heading: np.ndarray, method: str, loops: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray]:
     """Field-frame translation of each step, rotating by the heading before it."""
-    lx, ly = local_displacement(delta, method)
+    lx, ly = local_displacement(delta, method, loops)
     c, s = np.cos(heading), np.sin(heading)
     return c * lx - s * ly, s * lx + c * ly
 
@@ -124,7 +160,9 @@ def step_one(
     return x + (c * lx - s * ly), y + (s * lx + c * ly), heading + dth
 
 
-def _integrate_one_segment(deltas: np.ndarray, start: np.ndarray, method: str) -> np.ndarray:
+def _integrate_one_segment(
+    deltas: np.ndarray, start: np.ndarray, method: str, loops: np.ndarray | None = None
+) -> np.ndarray:
     """The batch path without anchors, built for speed.
 
     Headings are cumulative sums. The rotation by each old heading is the
@@ -144,7 +182,7 @@ def _integrate_one_segment(deltas: np.ndarray, start: np.ndarray, method: str) -
         local = (a * dx - b * dy) + 1j * (b * dx + a * dy)
         turn = (1.0 - b * dth) + 1j * (a * dth)
     else:
-        lx, ly = local_displacement(deltas, method)
+        lx, ly = local_displacement(deltas, method, loops)
         local = lx + 1j * ly
         turn = np.cos(dth) + 1j * np.sin(dth)
     # rotation[k] = e^(i heading before step k)
@@ -164,6 +202,7 @@ def integrate(
     method: str = "arc",
     anchor_at: np.ndarray | None = None,
     anchor_pose: np.ndarray | None = None,
+    loops: np.ndarray | None = None,
 ) -> np.ndarray:
     """Integrate a whole series of body deltas (N, 3) into poses (N, 3).
 
@@ -172,7 +211,9 @@ def integrate(
     (K,) the pose is set to ``anchor_pose`` (K, 3) and those deltas are
     ignored: this is how resets and reboots re-anchor. Vectorised with
     cumulative sums; equal to repeated ``step`` calls to rounding (tests hold
-    it to 1e-9).
+    it to 1e-9). ``loops`` (N,), when given, is how many of the robot's loops
+    each delta spans: a step after lost samples is integrated as the robot
+    integrated it, in that many equal steps.
     """
     deltas = np.asarray(deltas, dtype=float)
     n = deltas.shape[0]
@@ -185,14 +226,16 @@ def integrate(
         poses = np.empty((n, 3))
         for begin in range(0, n, _BLOCK):
             end = min(begin + _BLOCK, n)
-            poses[begin:end] = _integrate_one_segment(deltas[begin:end], start, method)
+            part = None if loops is None else loops[begin:end]
+            poses[begin:end] = _integrate_one_segment(deltas[begin:end], start, method, part)
             start = poses[end - 1]
         return poses
     anchor_at = np.asarray(anchor_at)
     anchor_pose = np.asarray(anchor_pose, dtype=float).reshape(-1, 3)
     if len(anchor_at) == 1 and anchor_at[0] == 0:
         # A stream's first sample: one segment from the anchor.
-        return np.vstack([anchor_pose, integrate(deltas[1:], anchor_pose[0], method)])
+        rest = None if loops is None else loops[1:]
+        return np.vstack([anchor_pose, integrate(deltas[1:], anchor_pose[0], method, loops=rest)])
     is_anchor = np.zeros(n, dtype=bool)
     is_anchor[anchor_at] = True
     # Segment k starts at the last anchor at or before k (segment 0 at `start`).
@@ -207,7 +250,7 @@ def integrate(
     heading = seg_start_pose[seg, 2] + (cum_th - base_th)
     old_heading = heading - dth
 
-    moved = np.column_stack(_moved(deltas, old_heading, method))
+    moved = np.column_stack(_moved(deltas, old_heading, method, loops))
     moved[is_anchor] = 0.0
     cum_xy = np.cumsum(moved, axis=0)
     base_xy = np.where((first >= 0)[:, None], cum_xy[np.maximum(first, 0)], 0.0)

@@ -43,6 +43,45 @@ def observable(wheels: Sequence[Wheel], with_imu: bool = False) -> bool:
     return _full_rank(a[:, :2] if with_imu else a)
 
 
+def _inverse(gram: list[list[float]]) -> list[list[float]] | None:
+    """Inverse of a 2x2 or 3x3 matrix by cofactors, in floats; None when it is (nearly) singular."""
+    if len(gram) == 2:
+        (a, b), (c, d) = gram
+        det = a * d - b * c
+        scale = max(abs(a * d), abs(b * c), 1e-300)
+        return None if abs(det) <= _RANK_TOLERANCE**2 * scale else [[d / det, -b / det], [-c / det, a / det]]
+    (a, b, c), (d, e, f), (g, h, i) = gram
+    cof = [[e * i - f * h, c * h - b * i, b * f - c * e],
+           [f * g - d * i, a * i - c * g, c * d - a * f],
+           [d * h - e * g, b * g - a * h, a * e - b * d]]
+    det = a * cof[0][0] + b * cof[1][0] + c * cof[2][0]
+    scale = max(abs(a * cof[0][0]) + abs(b * cof[1][0]) + abs(c * cof[2][0]), 1e-300)
+    if abs(det) <= _RANK_TOLERANCE**2 * scale:
+        return None
+    return [[x / det for x in row] for row in cof]
+
+
+def solve_matrix(matrix: np.ndarray) -> np.ndarray:
+    """The least-squares solve (pseudo-inverse, (k, n)) of an (n, k) wheel matrix, k = 2 or 3.
+
+    Square: its inverse; taller: (A^T A)^-1 A^T. Both by cofactors in plain
+    floats: LAPACK's SVD (np.linalg.pinv) wakes BLAS threads that then spin
+    beside the caller, which a fit calling it per evaluation paid for on a
+    busy machine. A (nearly) singular matrix falls back to pinv.
+    """
+    rows = np.asarray(matrix, dtype=float)
+    n, k = rows.shape
+    a = rows.tolist()
+    if n == k:
+        inverse = _inverse(a)
+        return np.asarray(inverse) if inverse is not None else np.linalg.pinv(rows)
+    gram = [[sum(r[i] * r[j] for r in a) for j in range(k)] for i in range(k)]
+    inverse = _inverse(gram)
+    if inverse is None:
+        return np.linalg.pinv(rows)
+    return np.asarray([[sum(inverse[i][m] * r[m] for m in range(k)) for r in a] for i in range(k)])
+
+
 def times_transpose(rows: np.ndarray, matrix: np.ndarray) -> np.ndarray:
     """``rows @ matrix.T`` for a small matrix, as one scaled add per column of it.
 
@@ -68,10 +107,10 @@ class Kinematics:
         self.n_wheels = len(profile.wheels)
         self.matrix = observation_matrix(profile.wheels)
         self.travel_per_count = np.array([w.travel_per_count for w in profile.wheels])
-        # Least squares (exact for three wheels): pinv solves A d = s.
-        self._solve = np.linalg.pinv(self.matrix)
+        # Least squares (exact for three wheels): the pseudo-inverse solves A d = s.
+        self._solve = solve_matrix(self.matrix)
         # With the IMU giving dth: A[:, :2] [dx dy] = s - A[:, 2] dth.
-        self._solve_xy = np.linalg.pinv(self.matrix[:, :2])
+        self._solve_xy = solve_matrix(self.matrix[:, :2])
         # Plain-float rows for body_delta_one, whose samples come one at a
         # time: numpy's cost per call (microseconds) would dwarf the sums.
         # Body delta per count of each wheel: the solve with travel folded in.

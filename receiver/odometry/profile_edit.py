@@ -21,6 +21,7 @@ from receiver.odometry.robot import (
     HEADING_UNITS,
     HEADING_ZEROS,
     IMU_MODES,
+    INTEGRATIONS,
     METRES_PER_UNIT,
     ROBOT_NAME_CHARS,
     Y_AXES,
@@ -56,6 +57,9 @@ PROFILE_SETTINGS: dict[str, Setting] = {
     "reported.heading_positive": Setting(str, HEADING_POSITIVE, about="the turn that makes the reported heading grow"),
     "reported.y_axis": Setting(str, Y_AXES, about="where the reported +y points, seen from above"),
     "reported.heading_zero": Setting(str, HEADING_ZEROS, about="the axis the robot faces at reported heading 0"),
+    # Optional in the file: absent, the checks find it from the robot's reports. An edit can
+    # declare it; declaring it "not said" again is the file's to do.
+    "reported.integration": Setting(str, INTEGRATIONS, about="how the robot code integrates its own pose"),
     "imu.mode": Setting(str, IMU_MODES, about="heading: the IMU's heading replaces the wheels' heading change"),
 }
 # Keys of each wheel: "wheel.<name or index>.<key>".
@@ -260,7 +264,7 @@ def edits_between(before: Profile, after: Profile) -> list[Edit]:
         if key == "distance_unit":
             continue
         old, new = _profile_value(before, key), _profile_value(after, key)
-        if old != new:
+        if old != new and new is not None:  # an undeclared integration has no `--set` value
             edits.append(Edit(key, new))
     for index, (old_w, new_w) in enumerate(zip(before.wheels, after.wheels)):
         for key in WHEEL_SETTINGS:

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from typing import Iterable
 
 # Length of one unit in metres (SI definitions; 1 in = 25.4 mm exactly).
 METRES_PER_UNIT = {"in": 0.0254, "mm": 0.001, "cm": 0.01, "m": 1.0}
@@ -18,6 +19,10 @@ HEADING_POSITIVE = ("ccw", "cw")
 Y_AXES = ("left", "right")
 HEADING_ZEROS = ("x", "y")
 IMU_MODES = ("off", "heading")
+# How a robot's code may integrate its own pose (odometry/integrate.py has all three).
+INTEGRATIONS = ("euler", "midpoint", "arc")
+# The [reported] settings that are conventions (each a choice of two); ``integration`` is not one.
+CONVENTION_KEYS = ("heading_unit", "heading_positive", "y_axis", "heading_zero")
 ROBOT_NAME_CHARS = frozenset("ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789_.-")
 
 
@@ -43,12 +48,18 @@ class Wheel:
 
 @dataclass(frozen=True)
 class Reported:
-    """How the robot expresses its own pose (see DESIGN.md, Conventions)."""
+    """How the robot expresses its own pose (see DESIGN.md, Conventions).
+
+    ``integration`` is how the robot code integrates its pose (one of
+    INTEGRATIONS), or None when the profile does not say: the checks then
+    find it out from the robot's reports.
+    """
 
     heading_unit: str = "rad"
     heading_positive: str = "ccw"
     y_axis: str = "left"
     heading_zero: str = "x"
+    integration: str | None = None
 
 
 @dataclass(frozen=True)
@@ -111,3 +122,23 @@ def inches(unit: str) -> float:
     return METRES_PER_UNIT["in"] / METRES_PER_UNIT[unit]
 
 
+
+
+def missing_profile_hint(robot: str, given: Iterable[str]) -> str:
+    """What to do for a robot without a profile, naming the profiles given for no robot heard.
+
+    ``given`` holds the names of the profiles given that no robot uses; with
+    none, the hint is to give one with --profile.
+    """
+    names = sorted(set(given) - {robot})
+    if not names:
+        return "give one with --profile"
+    if len(names) == 1:
+        return (
+            f"the profile given is named {names[0]}; the messages come from {robot}: "
+            f'set name = "{robot}" in the profile, or send that name'
+        )
+    return (
+        f"the profiles given are named {', '.join(names)}; the messages come from {robot}: "
+        f'set name = "{robot}" in the right one, or send its name'
+    )

@@ -16,7 +16,7 @@ import numpy as np
 from receiver.errors import UsageError
 
 FIELD_SIZE_IN = 144.0  # common practice: a competition field is 12 ft square
-PATHS = ("square", "figure-eight", "spin", "strafe", "wander", "guided", "push-forward", "push-left")
+PATHS = ("square", "figure-eight", "spin", "strafe", "wander", "guided", "guided-curving", "push-forward", "push-left")
 
 # First zero of the Bessel function J0 (Abramowitz and Stegun, table 9.5). A
 # heading that swings by this amplitude either side of its centre, at
@@ -52,21 +52,24 @@ class Moves:
         return self.peaks[k] * shape[..., None]
 
 
-def _moves(start: tuple[float, float, float], steps: list[tuple[str, float, float]], repeat: bool) -> Moves:
-    """Moves from ("forward" | "left" | "turn" | "pause", amount, peak speed) steps.
+def _moves(start: tuple[float, float, float], steps: list[tuple], repeat: bool) -> Moves:
+    """Moves from ("forward" | "left" | "turn" | "pause", amount, peak speed[, turn]) steps.
 
     Amounts are inches or radians (seconds for a pause); the duration that
     covers the amount at the given peak under a sin^2 profile is 2 * amount / peak.
+    A push may also turn the robot by ``turn`` radians on the way (a curving push).
     """
     axis = {"forward": 0, "left": 1, "turn": 2}
     durations, peaks = [], []
-    for kind, amount, peak in steps:
+    for kind, amount, peak, *turn in steps:
         twist = np.zeros(3)
         if kind == "pause":
             durations.append(amount)
         else:
             durations.append(2.0 * abs(amount) / peak)
             twist[axis[kind]] = math.copysign(peak, amount)
+            if turn:
+                twist[2] += turn[0] / durations[-1] * 2.0  # the sin^2 profile covers peak * T / 2
         peaks.append(twist)
     return Moves(start, np.asarray(durations), np.asarray(peaks), repeat)
 
@@ -177,6 +180,19 @@ def make_path(name: str, rng: np.random.Generator) -> Motion:
         steps = [
             ("pause", 1.0, 0.0),
             ("forward", 18.0, 12.0),
+            ("pause", 1.0, 0.0),
+            ("left", 18.0, 12.0),
+            ("pause", 1.0, 0.0),
+            ("turn", math.radians(120.0), 1.0),
+            ("pause", 1.0, 0.0),
+        ]
+        return _moves((0.0, 0.0, 0.0), steps, repeat=False)
+    if name == "guided-curving":
+        # The hand-push check done carelessly: the forward push curves 30
+        # degrees to the left on its way (the robot was pushed at one corner).
+        steps = [
+            ("pause", 1.0, 0.0),
+            ("forward", 18.0, 12.0, math.radians(30.0)),
             ("pause", 1.0, 0.0),
             ("left", 18.0, 12.0),
             ("pause", 1.0, 0.0),

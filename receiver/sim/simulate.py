@@ -198,7 +198,8 @@ def simulate(
     start = np.full((n, 3), np.nan)
     start[0] = rep103_to_reported(truth[0], robot_profile.reported)
     columns = Columns(seq, t, ticks, start, imu_values, loop_s, np.zeros(n, dtype=bool))
-    robot_pose = Tracker(robot_profile).feed(columns).pose
+    # The robot code integrates as its profile says (arc when it does not say).
+    robot_pose = Tracker(robot_profile, robot_profile.reported.integration or "arc").feed(columns).pose
     assert len(robot_pose) == n, "the robot code integrates every one of its own loops"
     reported = rep103_to_reported(robot_pose, robot_profile.reported)
 

@@ -10,6 +10,7 @@ track width within 0.5 %, back-wheel offset within 0.05 in.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import replace
 
 import numpy as np
@@ -114,7 +115,7 @@ def test_bad_input_is_refused_in_one_line() -> None:
         spin_calibration(spin, PRACTICE, 5)
     with pytest.raises(UsageError, match="measured only"):
         spin_calibration(spin, PRACTICE.with_wheels((replace(W[0], reversed=True), W[1], W[2])), 3)
-    with pytest.raises(UsageError, match="profile uses no IMU heading"):
+    with pytest.raises(UsageError, match="needs an \"imu\" value in every message"):
         spin_calibration(spin, PRACTICE, None)
     with pytest.raises(UsageError, match="expected x \\(forward\\) or y \\(left\\)"):
         push_calibration(spin, PRACTICE, 48.0, "z")
@@ -125,3 +126,63 @@ def test_bad_input_is_refused_in_one_line() -> None:
         spin_calibration(spin, sideways_only, 3)
     with pytest.raises(UsageError, match="no wheel in the profile rolls along x"):
         push_calibration(spin, sideways_only, 48.0, "x")
+
+
+def _spin_past_whole_turns(profile, turns_made: float, faults=(), imu=True):
+    """A clip of the spin path stopped at ``turns_made`` turns (motion_paths.py: each turn a
+    sin^2 profile over T = 4 pi / 3 s, then 0.5 s at rest)."""
+    from scipy.optimize import brentq
+
+    period = 4.0 * math.pi / 3.0
+    whole, part = divmod(turns_made, 1.0)
+    into = brentq(lambda tau: tau / period - math.sin(2 * math.pi * tau / period) / (2 * math.pi) - part, 0.0, period)
+    run = simulate(profile, "spin", 100.0, whole * (period + 0.5) + into, 1, parse_faults([f"slip:{SLIP}", *faults], profile), imu=imu)
+    return clip_from_columns(columns_from_samples(run.samples, len(profile.wheels)))
+
+
+def test_turns_stated_wrong_are_caught_by_the_robots_own_heading_and_imu() -> None:
+    # Issue 12: said 4 turns, the robot made 4.14; the track width came out
+    # 3.6 % off with a bound of +-0.00077 in and no word of the count.
+    result = spin_calibration(_spin_past_whole_turns(PRACTICE, 4.14), PRACTICE, 4)
+    assert result.values[0].after == pytest.approx(12.5 * 4.14 / 4, rel=0.002)  # what the stated count gives
+    [warning] = result.warnings
+    assert warning.startswith("the robot's own heading says 4.14 turns and its IMU says 4.14 turns; you said 4")
+    assert "count again" in warning
+    assert any("not how well the robot was lined up at the end: 2 deg off over 4 turns" in n for n in result.notes)
+    assert any(n.startswith("4 turns: 5 or more keep that under") for n in result.notes)
+    # Without an IMU the robot's own heading alone says it, and both causes are named.
+    alone = spin_calibration(_spin_past_whole_turns(PRACTICE, 4.14, imu=False), PRACTICE, 4)
+    assert alone.warnings[0].startswith("the robot's own heading says 4.14 turns; you said 4 (the wheels under the profile: 4.14)")
+    # Counted right: nothing to say.
+    assert spin_calibration(_spin_past_whole_turns(PRACTICE, 5.0), PRACTICE, 5).warnings == []
+
+
+def test_the_imu_tells_a_miscount_from_a_wrong_geometry() -> None:
+    # The robot code's track width is 4 % short: its own heading says more
+    # turns than were made; the IMU, independent of the wheels, says 4.
+    w = PRACTICE.wheels
+    short = PRACTICE.with_wheels((replace(w[0], y=6.0), replace(w[1], y=-6.0), w[2]))
+    run = simulate(PRACTICE, "spin", 100.0, 4 * (4 * math.pi / 3 + 0.5), 1, parse_faults([f"slip:{SLIP}"], PRACTICE), imu=True)
+    cols = columns_from_samples(run.samples, 3)
+    from receiver.odometry.recompute import Tracker
+    from receiver.odometry.conventions import rep103_to_reported
+
+    cols.pose[:] = rep103_to_reported(Tracker(short).feed(cols).pose, short.reported)  # the robot code's own pose
+    result = spin_calibration(clip_from_columns(cols), short, 4)
+    [warning] = result.warnings
+    assert "its IMU says 4.00 turns; you said 4: the IMU agrees with you" in warning
+    assert result.values[0].after == pytest.approx(12.5, rel=0.005)
+
+
+def test_a_push_change_far_too_large_is_warned_with_causes() -> None:
+    # Issue 12: a push accepted a -50 % diameter change without comment
+    # (here: 48 in pushed, 24 entered).
+    result = push_calibration(_clip(PRACTICE, "push-forward", 10.0, 1), PRACTICE, 24.0, "x")
+    assert result.values[0].after == pytest.approx(1.378 / 2, rel=0.01)
+    assert any(w.startswith("the robot's own pose says it moved 48 in (the wheels under the profile: 48 in); you said 24 in")
+               for w in result.warnings)
+    large = [w for w in result.warnings if re.match(r"the left wheel diameter by -(49.9|50.0|50.1) %, the right wheel diameter by -", w)]
+    assert large and "a push distance not in in (the profile's unit)" in large[0] and "counts_per_rev" in large[0]
+    assert any("not how well the push was measured: 0.125 in at each end" in n for n in result.notes)
+    # The right distance: no warning.
+    assert push_calibration(_clip(PRACTICE, "push-forward", 10.0, 1), PRACTICE, 48.0, "x").warnings == []

@@ -125,7 +125,7 @@ def test_bad_input_exits_with_one_line(tmp_path: Path, capsys) -> None:
         (["calibrate", spin, "--spin-turns", "3", "--push-distance", "4", "--push-axis", "x"], "choose one test"),
         (["calibrate", spin, "--push-distance", "48"], "--push-distance and --push-axis go together"),
         (["calibrate", spin, "--spin-turns", "7"], "count the turns again"),
-        (["calibrate", spin, "--spin-imu"], "profile uses no IMU heading"),
+        (["calibrate", spin, "--spin-imu"], "needs an \"imu\" value in every message"),
         (["calibrate", spin, "--spin-turns", "3", "--profile", tmp_path / "nope.toml"], "no such file"),
     ]
     for args, reason in cases:

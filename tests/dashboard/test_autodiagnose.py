@@ -81,6 +81,13 @@ def test_not_enough_motion_asks_again_while_the_disagreement_stays_up():
     assert not ask and w.state is WatchState.DONE
 
 
+@pytest.mark.parametrize("answer, state", [("undecided", "UNSURE"), ("near twins", "DONE")])
+def test_an_undecided_answer_is_asked_again_and_near_twins_are_an_answer(answer, state):
+    w, _ = step(Watch(), "bot", "k", 10, PAST, None)
+    w, ask = step(w, "bot", "k", 11, UP, {"n": 1, "confidence": answer})
+    assert not ask and w.state is WatchState[state]
+
+
 def test_a_late_not_enough_motion_asks_again_in_the_tick_it_arrives():
     # On a busy machine a run can take longer than RETRY_TICKS: its answer
     # and the retry it calls for come in one tick, and that tick asks.

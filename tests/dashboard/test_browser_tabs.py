@@ -1,6 +1,6 @@
 """Each browser tab its own view: a recording opened in one tab leaves every other tab
-on the live receiver, and a tab opened later starts live (headless Chromium, a running
-``podwatch demo`` on loopback)."""
+on the live receiver, a tab opened later starts live, and a profile edited in one tab's
+editor is that tab's alone (headless Chromium, a running ``podwatch demo`` on loopback)."""
 
 from __future__ import annotations
 
@@ -12,6 +12,7 @@ import pytest
 
 from dashboard import ids
 from tests.dashboard.conftest import CHROMIUM, REVERSED, _loopback_only, open_from_list, open_pages
+from tests.dashboard.test_browser_editor import choose, field, options
 
 pytest.importorskip("playwright.sync_api")
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
@@ -57,6 +58,18 @@ def test_a_recording_opened_in_one_tab_leaves_the_other_live(demo_url):
         before = messages(second)
         wait_for(lambda: messages(second) > before + 50, "the second tab to keep counting live messages")
         assert status(second).startswith("live") and not replay_bar_shown(second)
+
+        # An edit in the first tab's editor is the first tab's: the second tab's editor shows the
+        # loaded profile, unedited, on its own live session.
+        first.click(f"#{ids.EDITOR_OPEN}")
+        wait_for(lambda: first.locator(f"button{field('wheel.1.reversed')}").count() == 1, "the first tab's form")
+        choose(first, "wheel.1.reversed", "true")
+        wait_for(lambda: "--set wheel.right.reversed=true" in options(first), "the first tab's edit")
+        second.click(f"#{ids.EDITOR_OPEN}")
+        wait_for(lambda: options(second).startswith("no changes"), "the second tab's editor")
+        assert second.inner_text(f"button{field('wheel.1.reversed')}").strip() == "false"
+        assert "live robot's last" in second.inner_text(f"#{ids.EDITOR_WHAT}")
+        assert "--set wheel.right.reversed=true" in options(first)
 
         # A tab opened now starts on the live receiver, not inside the first tab's replay.
         third = second.context.browser.new_page(viewport={"width": 1400, "height": 1200})

@@ -79,6 +79,39 @@ def test_diagnosis_names_the_mistake_the_confidence_and_the_profile_change(rever
     assert sum(line in {r.hypothesis.id for r in d.ranking[:4]} for line in lines) == 4
 
 
+def test_the_panel_says_what_the_command_line_says(reversed_cols):
+    # The same words as `podwatch diagnose` (receiver/analysis/wording.py): the
+    # confidence with the noise it was judged against, the integration, the notes.
+    from receiver.cli.check_commands import _diagnosis_text
+
+    d = diagnose(reversed_cols, PRACTICE)
+    page = lines_of(diagnosis_view(d, "x"))
+    cli = _diagnosis_text(d)
+    for prefix in ("confidence: ", "integration: ", "note: "):
+        shown = [line for line in cli if line.startswith(prefix)]
+        assert shown and all(line in page for line in shown)
+    assert "times the clip's noise of 0.00053 in" in text_of(diagnosis_view(d, "x"))
+
+
+def test_a_robot_without_a_profile_while_another_name_was_given(tmp_path):
+    from dataclasses import replace
+
+    from receiver.formats.protocol import encode
+
+    mine = replace(PRACTICE, name="my-robot")
+    bare = tmp_path / "bare.jsonl"
+    bare.write_bytes(b"\n".join(encode(s) for s in simulate(mine, "spin", 50.0, 2.0, 1).stamp_rx(100.0)) + b"\n")
+    replay = ReplaySource(read_recording(bare, {"practice-bot": 3}), {"practice-bot": PRACTICE}, clock=lambda: 0.0)
+    station = TabView(None, replay)
+    replay.seek(2.0)
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "my-robot", 10.0, "x")
+    assert confidence is None
+    assert text_of(result) == (
+        "my-robot has no profile (the profile given is named practice-bot; the messages come from my-robot: "
+        'set name = "my-robot" in the profile, or send that name): nothing to diagnose.'
+    )
+
+
 def test_a_clip_without_turning_says_not_enough_motion():
     run = simulate(PRACTICE, "push-forward", 100.0, 4.0, 3, parse_faults(["reversed:back"], PRACTICE))
     d = diagnose(columns_from_samples(run.samples, len(PRACTICE.wheels)), PRACTICE)
@@ -128,13 +161,13 @@ def test_runs_on_a_replayed_source(reversed_cols):
     station = TabView(None, replay)
     assert "No samples" in text_of(diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")[0])
     replay.seek(6.0)
-    result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "ran on request")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "ran on request")
     assert confidence == "high" and REVERSED_RIGHT in text_of(result)
     assert text_of(result).startswith(f"ran on request ({REVERSED}) \u00b7 practice-bot: ")
     # The same as diagnosing the recording's first 6 s offline.
     upto = reversed_cols.take(np.flatnonzero(reversed_cols.rx <= replay.now()))
     assert f"{diagnose_recent(upto, PRACTICE, 10.0).ranking[1].score:.3f}" in text_of(result)
-    result, confidence = diagnosis_panel.run_diagnosis(station, "stranger", 10.0, "x")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "stranger", 10.0, "x")
     assert confidence is None and "no profile" in text_of(result)
 
 
@@ -194,9 +227,9 @@ def test_no_robot_yet_and_a_robot_without_data_get_a_message():
     from receiver.live.hub import Hub
 
     station = TabView(LiveSource(Hub({"practice-bot": PRACTICE})))
-    result, confidence = diagnosis_panel.run_diagnosis(station, None, 10.0, "x")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, None, 10.0, "x")
     assert text_of(result) == "No robot heard yet: nothing to diagnose." and confidence is None
-    result, confidence = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")
+    result, confidence, _ = diagnosis_panel.run_diagnosis(station, "practice-bot", 10.0, "x")
     assert text_of(result) == "No samples from practice-bot yet." and confidence is None
 
 

@@ -41,7 +41,8 @@ def test_the_receivers_own_troubles_lead():
     line = status(snap(LinkState.LIVE), 94.2, "live", recording_stopped="No space left on device",
                   worker_errors=("udp receive loop failed: Bad file descriptor; restarting",))
     assert [badge for badge, _ in line.badges] == [Badge.WORKER_ERROR, Badge.RECORDING_STOPPED, Badge.RECEIVING]
-    assert line.detail.startswith("recording stopped: No space left on device \u00b7 live")
+    assert line.detail.startswith("udp receive loop failed: Bad file descriptor; restarting; recording stopped: No "
+                                  "space left on device \u00b7 live")
 
 
 def test_every_badge_has_its_own_class_and_the_line_is_escaped():

@@ -11,12 +11,14 @@ from dashboard import view
 from dashboard.downsample import pick_rows
 from dashboard.settings import Settings, parse_length
 from dashboard.sources import LiveSource, ReplaySource
+from dashboard.status import status
 from dashboard.tabs import TabView
 from receiver.errors import UsageError
 from receiver.formats.profile_toml import load_profile
 from receiver.formats.protocol import decode
 from receiver.formats.recording import read_recording
 from receiver.live.hub import Hub
+from receiver.live.session import LinkState, RobotSnapshot, unheard_profiles
 from tests.conftest import FIXTURES
 from tests.dashboard.test_figures import values
 
@@ -213,3 +215,21 @@ def test_the_robots_own_signals_are_drawn_and_appended_by_name():
     # Picked by a person: only that one, drawn whole at once.
     picked = view.refresh(tab, Settings(), "practice-bot", 60.0, cursor, signals=["intake_power", "gone"])
     assert [trace["name"] for trace in picked.figures["signals"]["data"]] == ["intake_power"]
+
+
+def test_a_robot_without_a_profile_is_told_the_name_to_set():
+    def snap(robot, has_profile, messages):
+        return RobotSnapshot(
+            robot=robot, state=LinkState.LIVE if messages else LinkState.WAITING, has_profile=has_profile,
+            messages=messages, rate_hz=50.0, gaps=0, duplicates=0, late=0, restarts=0, resets=0, errors={},
+            loop_mean_s=0.02, loop_p50_s=0.02, loop_p95_s=0.02, loop_max_s=0.02, jitter_s=0.0, pose=None,
+            reported=None, position_error=float("nan"), heading_error=float("nan"), last_rx=1.0,
+        )
+
+    snapshots = {"practice-bot": snap("practice-bot", True, 0), "my-robot": snap("my-robot", False, 40)}
+    line = status(snapshots["my-robot"], 2.0, "live", unheard=tuple(unheard_profiles(snapshots))).detail
+    assert line.endswith(
+        "; no profile for this robot (the profile given is named practice-bot; the messages come from my-robot: "
+        'set name = "my-robot" in the profile, or send that name): not recomputed'
+    )
+    assert status(snapshots["my-robot"], 2.0, "live").detail.endswith("(give one with --profile): not recomputed")

@@ -34,9 +34,11 @@ class LoopThread:
 
 @contextmanager
 def live_receiver(config: ServeConfig) -> Iterator[LiveReceiver]:
-    """A started receiver; stopped (recording finished) on exit. ``.summary`` holds its lines."""
+    """A started receiver; stopped (recording finished) on exit. ``.summary`` holds its lines,
+    ``.runner`` is the LoopThread its coroutines run in."""
     runner = LoopThread()
     receiver = LiveReceiver(config, say=lambda line: None)
+    receiver.runner = runner  # where its coroutines run
     runner.call(receiver.start())
     try:
         yield receiver

@@ -17,7 +17,7 @@ ALL = [
 ]
 
 
-@pytest.mark.parametrize("reported", ALL, ids=lambda r: "-".join(r.__dict__.values()))
+@pytest.mark.parametrize("reported", ALL, ids=lambda r: "-".join(str(v) for v in r.__dict__.values() if v is not None))
 def test_round_trip(reported):
     rng = np.random.default_rng(5)
     poses = rng.normal(size=(20, 3)) * [40, 40, 2]

@@ -104,3 +104,17 @@ def test_imu_heading_replaces_the_wheel_heading(practice_profile):
     # reading (NaN) falls back to the wheels.
     assert kin.body_delta(travel, dth_imu=np.array(0.2))[2] == pytest.approx(0.2)
     np.testing.assert_allclose(kin.body_delta(travel, dth_imu=np.array(np.nan)), delta, atol=1e-12)
+
+
+@pytest.mark.parametrize("shape", [(3, 3), (4, 3), (6, 3), (2, 2), (3, 2), (4, 2)])
+def test_the_solve_is_the_pseudo_inverse(shape):
+    # Reference: numpy.linalg.pinv (SVD-based Moore-Penrose pseudo-inverse).
+    from receiver.odometry.kinematics import solve_matrix
+
+    rng = np.random.default_rng(sum(shape))
+    for _ in range(100):
+        matrix = rng.normal(size=shape)
+        np.testing.assert_allclose(solve_matrix(matrix), np.linalg.pinv(matrix), rtol=1e-8, atol=1e-10)
+    # Two wheels at one spot (a sign hypothesis can put them there): singular, pinv's answer.
+    singular = np.array([[1.0, 0.0, 6.25], [1.0, 0.0, 6.25], [0.0, 1.0, -5.5]])
+    np.testing.assert_allclose(solve_matrix(singular), np.linalg.pinv(singular), atol=1e-12)

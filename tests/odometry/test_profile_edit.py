@@ -173,3 +173,15 @@ def test_two_wheel_imu_profile_edits():
     assert apply_edits(profile, [Edit("x", -4.0, 1)]).wheels[1].x == -4.0
     with pytest.raises(ProfileError, match="cannot observe x and y"):
         apply_edits(profile, [Edit("angle", 0.0, 1)])
+
+
+def test_the_robots_integration_can_be_declared_by_an_edit(practice_profile):
+    # Absent from the profile (the checks find it from the reports), it becomes declared;
+    # edits_between names it, and never an undeclaring edit, which `--set` cannot spell.
+    assert practice_profile.reported.integration is None
+    declared = apply_edits(practice_profile, [Edit("reported.integration", "euler")])
+    assert declared.reported.integration == "euler"
+    assert edits_between(practice_profile, declared) == [Edit("reported.integration", "euler")]
+    assert edits_between(declared, practice_profile) == []
+    with pytest.raises(ProfileError, match=r"reported\.integration: unknown value 'rk4', expected one of euler, midpoint, arc"):
+        apply_edits(practice_profile, [Edit("reported.integration", "rk4")])

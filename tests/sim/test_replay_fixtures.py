@@ -61,7 +61,8 @@ def test_fixture_reads_and_matches_the_simulator(fixture) -> None:
     assert differences(cols, run) == [], f"{name} is out of date: run replay_fixtures/regenerate.py"
 
     result = Tracker(declared).feed(cols)
-    if any(spec.startswith("reversed") for spec in fault_specs) or declared != profile:
+    network = ("drop", "reorder", "duplicate", "slip")
+    if any(not spec.startswith(network) for spec in fault_specs) or declared != profile:  # a mistake in the robot code
         assert result.position_error.max() > 5.0
     else:
         assert result.position_error.max() < 1e-3 * (25.4 if profile.distance_unit == "mm" else 1.0)

@@ -7,6 +7,7 @@ from __future__ import annotations
 import asyncio
 import json
 import socket
+from dataclasses import replace
 
 import aiomqtt
 import msgspec
@@ -15,6 +16,7 @@ import numpy as np
 from receiver.formats.protocol import PoseMessage, encode
 from receiver.live.serve import ServeConfig
 from receiver.live.transports.mqtt import batch_payloads, parse_mqtt_url
+from receiver.odometry.faults import parse_faults
 from receiver.sim.simulate import simulate
 from tests.live.harness import handled, live_receiver, wait_until
 
@@ -79,3 +81,49 @@ def test_a_second_receiver_watches_the_same_robots(practice_profile, mosquitto, 
     # the pose topic carries A's latest recompute and its disagreement
     np.testing.assert_allclose(poses["practice-bot"].pose, pose_a[-1], atol=1e-9, rtol=0)
     assert np.isfinite(poses["practice-bot"].position_error)
+
+
+def test_a_viewer_without_a_profile_recomputes_with_the_forwarders(practice_profile, mosquitto, tmp_path, caplog):
+    # A forwards with --profile and keeps its profile retained on the broker;
+    # B, started later with no profile, takes it and recomputes the same
+    # poses and disagreement. C has its own, different profile: it keeps it
+    # and says so once.
+    run = simulate(practice_profile, path="figure-eight", rate_hz=100.0, duration_s=3.0, seed=5,
+                   faults=parse_faults(["reversed:right"], practice_profile))
+    profiles = {"practice-bot": practice_profile}
+    a_config = ServeConfig(profiles, udp=("127.0.0.1", 0), mqtt=mosquitto, forward=True, record=tmp_path / "a.jsonl")
+    other = replace(practice_profile, wheels=practice_profile.wheels[:2] + (
+        replace(practice_profile.wheels[2], x=-4.0),))
+    c_config = ServeConfig({"practice-bot": other}, mqtt=mosquitto, record=tmp_path / "c.jsonl")
+    with live_receiver(a_config) as a:
+        wait_until(lambda: a.mqtt.connected.is_set(), "A on the broker")
+        with live_receiver(ServeConfig({}, mqtt=mosquitto, record=tmp_path / "b.jsonl")) as b, \
+                live_receiver(c_config) as c:
+            wait_until(lambda: "practice-bot" in b.hub.profiles, "B to take the profile retained on the broker")
+            assert b.hub.profiles["practice-bot"] == practice_profile
+            wait_until(lambda: c.mqtt.connected.is_set(), "C on the broker")
+            with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as sock:
+                for sample in run.samples:
+                    sock.sendto(encode(sample), a.udp.address)
+            wait_until(lambda: handled(b) == len(run.samples) and handled(c) == len(run.samples),
+                       "B and C to receive every forwarded sample")
+    rows_a, rows_b = a.hub.history("practice-bot"), b.hub.history("practice-bot")
+    np.testing.assert_allclose(rows_b["pose"], rows_a["pose"], atol=1e-9, rtol=0)
+    np.testing.assert_allclose(rows_b["position_error"], rows_a["position_error"], atol=1e-9, rtol=0)
+    assert rows_a["position_error"][-1] > 5.0  # the reversed encoder: a disagreement worth showing
+    assert c.hub.profiles["practice-bot"] == other  # the local profile wins
+    said = [r.getMessage() for r in caplog.records if "differs from the one given here" in r.getMessage()]
+    assert len(said) == 1
+
+
+def test_a_bad_profile_on_the_broker_is_logged_and_ignored(mosquitto, tmp_path, caplog):
+    async def publish():
+        async with aiomqtt.Client(*parse_mqtt_url(mosquitto)) as client:
+            await client.publish("podwatch/junk-bot/profile", b"[" * 5000, qos=1, retain=True)
+            await client.publish("podwatch/named-bot/profile", b'{"name": "other-bot"}', qos=1, retain=True)
+
+    asyncio.run(publish())
+    with live_receiver(ServeConfig({}, mqtt=mosquitto, record=tmp_path / "b.jsonl")) as b:
+        wait_until(lambda: sum("ignored the profile" in r.getMessage() for r in caplog.records) >= 2,
+                   "both bad profiles to be logged")
+        assert b.hub.profiles == {} and b.mqtt.connected.is_set()
