@@ -28,7 +28,7 @@ BIN_ROWS = 128
 # histogram; a p95 from them is within a bin of the exact one.
 LOOP_BIN_MS = 0.1
 LOOP_BINS_UP_TO_MS = 10_000.0  # longer loops count in the last bin (max stays exact)
-_ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
+ANCHOR_KINDS = np.array([int(k) for k in ANCHORS])
 # The columns each view draws, after the rx column: (ring column, its index or None).
 VIEW_COLUMNS = {
     "track": (("pose", 0), ("pose", 1), ("reported", 0), ("reported", 1)),
@@ -148,7 +148,7 @@ def read_rows(block: dict[str, np.ndarray], lo: int, hi: int, entry: Entry, befo
     ``entry``, or, for a block chained before (``BlockSummary.shift``), with its ``shift``.
     Without ``copy`` the columns are the block's own (for a full block, which never changes)."""
     kind = block["kind"][:hi]
-    anchor = np.isin(kind, _ANCHOR_KINDS)
+    anchor = np.isin(kind, ANCHOR_KINDS)
     heading_error = block["heading_error"][:hi]
     unwrapped, shift_until = unwrap_heading_error(heading_error, anchor, None)
     if shift is None:

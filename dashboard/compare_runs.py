@@ -15,8 +15,10 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Sequence
 
+import numpy as np
 from dash import html
 
+from dashboard.block_summary import ANCHOR_KINDS, unwrap_heading_error
 from dashboard.downsample import pick_rows
 from dashboard.workbench_figures import RunCurve, compare_curves, run_colour
 from receiver.analysis.compare import RunRow, profile_differences, row_from_result
@@ -55,10 +57,11 @@ def runs_of(data: RecordingData, given: dict[str, Profile], points: int) -> tupl
         steps = step_motion(result.pose, result.kind)
         curve = disagreement_by_distance(result.pose, result.position_error, result.heading_error, result.kind,
                                          metres, steps)
-        rows = pick_rows(curve.distance_m, [curve.position_error, curve.heading_error_deg], points)
+        # Unwrapped, as on the page's own disagreement graph: a steady growth is a slope.
+        heading = np.degrees(unwrap_heading_error(result.heading_error, np.isin(result.kind, ANCHOR_KINDS), None)[0])
+        rows = pick_rows(curve.distance_m, [curve.position_error, heading], points)
         runs.append(Run(label, str(data.path), row_from_result(result, profile, robot),
-                        RunCurve(label, curve.distance_m[rows], curve.position_error[rows],
-                                 curve.heading_error_deg[rows])))
+                        RunCurve(label, curve.distance_m[rows], curve.position_error[rows], heading[rows])))
     return runs, skipped
 
 

@@ -45,7 +45,7 @@ def cards(settings: Settings) -> list[html.Section]:
         html.H2("Diagnosis"),
         html.Div(className="panel-controls", children=[
             dcc.Dropdown(id=ids.DIAGNOSE_SECONDS, options=[{"label": f"last {s:g} s", "value": s} for s in choices],
-                         value=settings.diagnose_s, clearable=False, className="diagnose-seconds"),
+                         value=settings.diagnose_s, clearable=False, searchable=False, className="diagnose-seconds"),
             html.Button("Diagnose now", id=ids.DIAGNOSE_RUN, n_clicks=0, className="button"),
             html.Span(id=ids.DIAGNOSE_STATUS, className="panel-status"),
         ]),

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from dashboard.downsample import pick_rows
+from dashboard.block_summary import ANCHOR_KINDS, unwrap_heading_error
 from dashboard.editor_figures import EditorPaths, editor_disagreement, editor_track
 from dashboard.workbench_session import Session
 from receiver.analysis.compare import RunRow, row_from_result
@@ -65,7 +66,10 @@ def draw_editor(
     # Both runs hold the same rows: which samples are accepted depends on seq, t and reset alone.
     assert len(edited.t) == len(loaded.t)
     loaded_error, edited_error = loaded.position_error, edited.position_error * scale
-    loaded_heading, edited_heading = np.degrees(loaded.heading_error), np.degrees(edited.heading_error)
+    # Unwrapped, as on the page's own disagreement graph: a steady growth per turn is a slope.
+    anchor = np.isin(loaded.kind, ANCHOR_KINDS)
+    loaded_heading, edited_heading = (np.degrees(unwrap_heading_error(r.heading_error, anchor, None)[0])
+                                      for r in (loaded, edited))
     track_rows = pick_rows(t, [loaded.pose[:, 0], loaded.pose[:, 1], edited.pose[:, 0], edited.pose[:, 1],
                                edited.reported[:, 0], edited.reported[:, 1]], points)
     paths = EditorPaths(edited.reported[track_rows, :2] * scale, loaded.pose[track_rows, :2],

@@ -20,7 +20,6 @@ from dashboard.figures import (
     RECOMPUTE_COLOUR,
     REPORTED_COLOUR,
     REPORTED_NAME,
-    _degrees_column,
     _layout,
     _line,
     _stacked_axes,
@@ -82,15 +81,15 @@ def editor_track(paths: EditorPaths, field_size: float, unit: str) -> dict:
 def editor_disagreement(
     t: np.ndarray, loaded: tuple[np.ndarray, np.ndarray], edited: tuple[np.ndarray, np.ndarray], unit: str
 ) -> dict:
-    """Position error (``unit``) and heading error (degrees, a gap at each wrap) of the loaded and
-    the edited recompute against time t (s); ``loaded`` and ``edited`` are (position, heading deg)."""
+    """Position error (``unit``) and heading error (degrees, unwrapped: one line through +-180)
+    of the loaded and the edited recompute against time t (s); ``loaded`` and ``edited`` are
+    (position, heading deg)."""
     tt = as_list(t)
     data = []
     for (position, _), name, colour in ((loaded, LOADED_NAME, RECOMPUTE_COLOUR), (edited, EDITED_NAME, EDITED_COLOUR)):
         data.append(_line(tt, as_list(position), name, colour, width=1.8))
     for (_, heading), name, colour in ((loaded, LOADED_NAME, RECOMPUTE_COLOUR), (edited, EDITED_NAME, EDITED_COLOUR)):
-        th, values = _degrees_column(t, heading, tt)
-        data.append(_line(th, values, name, colour, width=1.8, dash="dot", yaxis="y2", legend=False))
-    axes = _stacked_axes([f"position ({unit})", "heading (deg)"], "time (s)", gap=0.08)
+        data.append(_line(tt, as_list(heading), name, colour, width=1.8, yaxis="y2", legend=False))
+    axes = _stacked_axes([f"position ({unit})", "heading, unwrapped (deg)"], "time (s)", gap=0.08)
     axes["yaxis"]["rangemode"] = "tozero"
     return {"data": data, "layout": _layout(**axes)}

@@ -60,10 +60,11 @@ def unit_label(setting: Setting, unit: str) -> str:
 def _control(key: str, setting: Setting, value: Value) -> dcc.Input | dcc.Dropdown:
     if setting.kind is bool:
         return dcc.Dropdown(id=field_id(key), options=BOOL_OPTIONS, value=field_text(value), clearable=False,
-                            className="editor-choice")
+                            searchable=False, className="editor-choice")
     if setting.choices:
         return dcc.Dropdown(id=field_id(key), options=[{"label": c, "value": c} for c in setting.choices],
-                            value=value, clearable=False, placeholder=UNDECLARED.get(key, ""), className="editor-choice")
+                            value=value, clearable=False, searchable=False, placeholder=UNDECLARED.get(key, ""),
+                            className="editor-choice")
     # Text, not a number input: the page reads it as `--set` does, with its messages.
     return dcc.Input(id=field_id(key), type="text", inputMode="decimal" if setting.kind is float else "text",
                      value=field_text(value), debounce=DEBOUNCE_S, className="editor-text")

@@ -54,7 +54,7 @@ def card(settings: Settings, graph: Callable[[str], html.Div]) -> html.Section:
         html.Div(id=ids.EDITOR_BODY, className=CLOSED, children=[
             html.Div(className="panel-controls", children=[
                 dcc.Dropdown(id=ids.EDITOR_METHOD, options=[{"label": f"podwatch integrates: {m}", "value": m} for m in METHODS],
-                             value=METHODS[0], clearable=False, className="editor-method"),
+                             value=METHODS[0], clearable=False, searchable=False, className="editor-method"),
                 html.Button("Undo", id=ids.EDITOR_UNDO, n_clicks=0, className="button"),
                 html.Button("Reset to loaded profile", id=ids.EDITOR_RESET, n_clicks=0, className="button"),
                 html.Button("Download profile", id=ids.EDITOR_DOWNLOAD, n_clicks=0, className="button"),

@@ -16,6 +16,7 @@ import numpy as np
 
 from dashboard import signal_figures
 from dashboard.downsample import pick_rows
+from dashboard.signal_blocks import drawable
 from receiver.live.raw_history import RawHistory
 
 SHOWN_FIRST = 4  # signals drawn before a person picks any
@@ -45,8 +46,9 @@ class SignalsOut:
 
 def whole(raw: RawHistory, robot: str, picked: list[str] | None, since_rx: float, origin: float,
           points: int) -> SignalsOut:
-    """The figure of the signals received after ``since_rx`` (the window's start)."""
-    values = raw.signals(robot, since_rx)
+    """The figure of the signals received after ``since_rx`` (the window's start), read
+    through kept block summaries (signal_blocks.py)."""
+    values = drawable(raw, robot, since_rx)
     names = list(values)
     shown = chosen(names, picked)
     series = [_thinned(values[name], origin, points) for name in shown]

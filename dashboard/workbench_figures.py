@@ -14,7 +14,7 @@ from typing import NamedTuple, Sequence
 
 import numpy as np
 
-from dashboard.figures import _degrees_column, _layout, _line, _stacked_axes, as_list
+from dashboard.figures import _layout, _line, _stacked_axes, as_list
 from receiver.analysis.loop_cost import LoopCostBins
 
 # Okabe-Ito ("Color Universal Design", 2008) without its yellow, which is
@@ -42,17 +42,16 @@ def run_colour(index: int) -> str:
 
 
 def compare_curves(runs: Sequence[RunCurve], unit: str) -> dict:
-    """Position error (``unit``) and heading error (degrees, a gap at each wrap) of each run against
-    the distance it drove (m), one colour per run; the heading rows dotted."""
+    """Position error (``unit``) and heading error (degrees, unwrapped: one line through +-180)
+    of each run against the distance it drove (m), one colour per run."""
     data = []
     for k, run in enumerate(runs):
         data.append(_line(as_list(run.distance_m), as_list(run.position_error), f"#{k + 1} {run.label}",
                           run_colour(k), width=1.8))
     for k, run in enumerate(runs):
-        distance = as_list(run.distance_m)
-        x, y = _degrees_column(run.distance_m, run.heading_error_deg, distance)
-        data.append(_line(x, y, f"#{k + 1} {run.label}", run_colour(k), width=1.6, dash="dot", yaxis="y2", legend=False))
-    axes = _stacked_axes([f"position ({unit})", "heading (deg)"], "distance driven (m)", gap=0.08)
+        data.append(_line(as_list(run.distance_m), as_list(run.heading_error_deg), f"#{k + 1} {run.label}",
+                          run_colour(k), width=1.6, yaxis="y2", legend=False))
+    axes = _stacked_axes([f"position ({unit})", "heading, unwrapped (deg)"], "distance driven (m)", gap=0.08)
     axes["yaxis"]["rangemode"] = "tozero"
     return {"data": data, "layout": _layout(**axes)}
 

@@ -16,7 +16,7 @@ import threading
 import numpy as np
 
 from receiver.formats.protocol import Sample
-from receiver.live.ring_buffer import SMALL_BLOCK_ROWS, PendingRows, RingBuffer
+from receiver.live.ring_buffer import SMALL_BLOCK_ROWS, Cut, PendingRows, RingBuffer
 from receiver.live.signal_history import Signals, SignalStore, by_name
 from receiver.odometry.columns import Columns
 
@@ -126,6 +126,13 @@ class RawHistory:
         with self._lock:
             held = self._signals.cut(robot, since_rx)
         return {} if held is None else by_name(*held)  # the copy after the lock, as in columns
+
+    def signal_cut(self, robot: str, since_rx: float | None = None) -> tuple[list[str], Cut] | None:
+        """The robot's signal names (in order of first appearance) and its signal rows received
+        after ``since_rx``, uncopied: ``Cut.pieces`` reads them in place (rx, value and the
+        name's number); None for a robot that sent none."""
+        with self._lock:
+            return self._signals.cut(robot, since_rx)
 
     def columns(self, robot: str, since_rx: float | None = None) -> Columns | None:
         """Copies of the robot's samples in arrival order, with ``since_rx`` only

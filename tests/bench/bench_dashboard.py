@@ -94,18 +94,25 @@ def update_request(app, robot: str, cursor, tick: int, window_s: float) -> dict:
     }
 
 
-def server_side(count: int, rate_hz: float, calls: int, window_s: float, full_every_s: float) -> dict:
+def server_side(count: int, rate_hz: float, calls: int, window_s: float, full_every_s: float, signals: int) -> dict:
     """Update calls on a hub whose window of ``window_s`` is full: each robot simulated and fed
     in turn (only the samples still to come are kept, so 600 s at 1 kHz for four robots fits
-    in memory), then ``calls`` updates 0.2 s of new samples apart."""
+    in memory), then ``calls`` updates 0.2 s of new samples apart. With ``signals``, every
+    message carries that many signals of the robot's own (the page draws up to four)."""
     profiles = robots(count)
     hub = Hub({p.name: p for p in profiles})
     faults = parse_faults(["reversed:right"], profiles[0])
     t_total = window_s + calls * STEP_S + 1.0
     t0 = 1_000_000.0
+    clock = Clock(t0)
+    live = LiveSource(hub, clock)  # before the robots: its raw history (and signals) fills with the window
+    live.origin = t0
     streams = []
     for k, profile in enumerate(profiles):
         run = simulate(profile, "wander", rate_hz, t_total, seed=k + 1, faults=faults)
+        if signals:
+            for n, sample in enumerate(run.samples):
+                sample.data = {f"signal.{j}": float(n % (100 + j)) for j in range(signals)}
         arrival = np.asarray(run.arrival_s)
         fill = int(np.searchsorted(arrival, window_s, side="right"))
         for start in range(0, fill, 1000):  # a process() per second of 1 kHz, as the pump would
@@ -115,7 +122,7 @@ def server_side(count: int, rate_hz: float, calls: int, window_s: float, full_ev
             hub.process(t0 + float(arrival[end - 1]))
         streams.append((run.samples[fill:], arrival[fill:]))
         del run
-    clock = Clock(t0 + window_s)
+    clock.now = t0 + window_s
 
     def feed_until(t: float, fed: list[int]) -> None:
         for k, (samples, arrival) in enumerate(streams):
@@ -126,8 +133,7 @@ def server_side(count: int, rate_hz: float, calls: int, window_s: float, full_ev
         hub.process(t0 + t)
 
     fed = [0] * len(streams)
-    station = Station(live=LiveSource(hub, clock))
-    station.live.origin = t0
+    station = Station(live=live)
     app = create_app(station, Settings(window_s=window_s, full_every_s=full_every_s))
     client = app.server.test_client()
     robot = profiles[0].name
@@ -156,7 +162,7 @@ def server_side(count: int, rate_hz: float, calls: int, window_s: float, full_ev
         return {"n": len(items), "median_ms": round(statistics.median(times), 2), "max_ms": round(max(times), 2),
                 "median_kB": round(statistics.median(sizes), 1), "max_kB": round(max(sizes), 1)}
 
-    return {"robots": count, "rate_hz": rate_hz, "window_s": window_s, "rows_in_window": rows,
+    return {"robots": count, "rate_hz": rate_hz, "window_s": window_s, "signals": signals, "rows_in_window": rows,
             "first_full": summary(first), "full": summary(full), "append": summary(append),
             "load_average_1min": round(os.getloadavg()[0], 2), "tree": str(Path(create_app.__code__.co_filename).parents[1])}
 
@@ -279,12 +285,14 @@ def main() -> None:
     parser.add_argument("--only", choices=("server", "browser"), help="run one part only")
     parser.add_argument("--full-every", type=float, default=2.0,
                         help="seconds between whole redraws in the server-side cases (the page's default is 10)")
-    parser.add_argument("--cases", default="1x1000x60,4x200x60,4x1000x600",
-                        help="server-side cases, robots x rate (Hz) x window (s), comma-separated")
+    parser.add_argument("--cases", default="1x1000x60,4x200x60,4x1000x600,4x1000x600x4",
+                        help="server-side cases, robots x rate (Hz) x window (s) [x signals a message], "
+                             "comma-separated")
     args = parser.parse_args()
-    cases = [tuple(float(x) for x in case.split("x")) for case in args.cases.split(",")]
-    for count, rate, window in cases if args.only != "browser" else ():
-        print("server", json.dumps(server_side(int(count), rate, args.calls, window, args.full_every)), flush=True)
+    cases = [tuple(float(x) for x in case.split("x")) + (0.0,) for case in args.cases.split(",")]
+    for count, rate, window, signals, *_ in cases if args.only != "browser" else ():
+        print("server", json.dumps(server_side(int(count), rate, args.calls, window, args.full_every, int(signals))),
+              flush=True)
     if args.only != "server":
         for count, rate in ((1, 1000.0), (4, 200.0)):
             print("browser", json.dumps(in_browser(count, rate, args.seconds, args.fill)), flush=True)

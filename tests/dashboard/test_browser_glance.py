@@ -31,11 +31,12 @@ DEADLINE_S = 30.0  # for things to show up; not a speed check
 LIBRARY_PURPLE = "rgb(127, 75, 196)"  # Dash 4's own highlight colour (--Dash-Fill-Interactive-Strong)
 
 
-def wait_for(condition, what: str) -> None:
+def wait_for(condition, what: str, page=None) -> None:
     deadline = time.monotonic() + DEADLINE_S
     while not condition():
         if time.monotonic() > deadline:
-            raise AssertionError(f"gave up waiting for {what}")
+            shown = "" if page is None else f"; the status line says {page.inner_text(f'#{ids.STATUS}')!r}"
+            raise AssertionError(f"gave up waiting for {what}{shown}")
         time.sleep(0.2)
 
 
@@ -183,13 +184,13 @@ def test_a_spin_is_one_line_replays_say_where_they_stand_and_the_look_is_our_own
 
         # A replay says whether it plays, holds or has ended, and never "receiving".
         open_from_list(page, REVERSED.name)
-        wait_for(lambda: has_badge(page, "replay-paused", "replay paused"), "the replay-paused badge")
+        wait_for(lambda: has_badge(page, "replay-paused", "replay paused"), "the replay-paused badge", page)
         page.focus(f"#{ids.SCRUB} .dash-slider-thumb")
         assert LIBRARY_PURPLE not in computed_colours(page)
         page.click(f"#{ids.SPEED}")
         page.get_by_role("option", name="10\u00d7").click()
         page.click(f"#{ids.PLAY}")
-        wait_for(lambda: has_badge(page, "replaying", "replaying at 10\u00d7"), "the replaying badge")
-        wait_for(lambda: has_badge(page, "replay-ended", "replay ended"), "the replay-ended badge")
+        wait_for(lambda: has_badge(page, "replaying", "replaying at 10\u00d7"), "the replaying badge", page)
+        wait_for(lambda: has_badge(page, "replay-ended", "replay ended"), "the replay-ended badge", page)
         status = page.inner_text(f"#{ids.STATUS}")
         assert "receiving" not in status and "messages/s" not in status, status

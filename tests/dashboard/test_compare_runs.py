@@ -92,6 +92,11 @@ def test_the_curves_are_each_runs_disagreement_against_distance():
     assert max(fixed_run["y"]) < 1e-3  # the fixed robot agrees to within encoder resolution
     assert all(trace["yaxis"] == "y2" for trace in heading)
     assert figure["layout"]["xaxis"]["title"]["text"] == "distance driven (m)"
+    # The reversed encoder's heading error through its many wraps: one line (compare's +1612 deg
+    # per turn over 1.34 turns), each step under half a turn.
+    turned = [y for y in heading[0]["y"] if y is not None]
+    assert max(abs(b - a) for a, b in zip(turned, turned[1:])) < 180.0
+    assert turned[-1] - turned[0] == pytest.approx(1612.45 * runs[0].row.growth.turns, rel=1e-3)
 
 
 def test_curves_in_other_units_are_drawn_in_the_first_runs_unit():

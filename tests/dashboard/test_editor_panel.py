@@ -14,6 +14,7 @@ from dashboard.editor_draw import draw_editor, session_time
 from dashboard.editor_figures import (
     EDITED_NAME,
     HEADING_EDITED,
+    HEADING_LOADED,
     LOADED_NAME,
     POSITION_EDITED,
     POSITION_LOADED,
@@ -73,6 +74,11 @@ def test_flipping_the_wheel_the_robot_code_reverses_brings_the_disagreement_to_z
     assert np.allclose(errors[POSITION_LOADED]["y"], loaded.position_error, atol=5e-4)
     assert max(errors[POSITION_EDITED]["y"]) < 1e-3
     assert errors[HEADING_EDITED]["yaxis"] == "y2"
+    # The loaded profile's heading error passes +-180 degrees again and again: one line, as numpy
+    # unwraps it (no re-anchor in this recording but its first sample).
+    heading = np.array(errors[HEADING_LOADED]["y"], dtype=float)
+    assert np.abs(np.diff(heading)).max() < 180.0 and heading.max() - heading.min() > 4 * 360.0
+    assert np.allclose(heading, np.degrees(np.unwrap(loaded.heading_error)), atol=5e-4)
     assert errors[POSITION_LOADED]["x"][-1] == pytest.approx(float(session_time(loaded)[-1]), abs=1e-3)
     assert draw.disagreement["layout"]["yaxis"]["title"]["text"] == "position (in)"
 
