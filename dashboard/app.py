@@ -17,7 +17,15 @@ from dash.exceptions import DependencyException
 from flask import request
 from werkzeug.exceptions import HTTPException
 
-from dashboard import callbacks, compare_panel, diagnosis_panel, editor_panel, layout, loop_cost_panel, recording_opener
+from dashboard import (
+    callbacks,
+    compare_panel,
+    diagnosis_panel,
+    editor_panel,
+    layout,
+    loop_cost_panel,
+    recording_opener,
+)
 from dashboard.settings import Settings
 from dashboard.tabs import Station
 

@@ -22,6 +22,7 @@ from dashboard.app import create_app
 from dashboard.host_guard import HostGuard, network_urls
 from dashboard.settings import DEFAULT_HOST, DEFAULT_PORT, Settings
 from dashboard.tabs import Station
+from dashboard.window_rows import Warmer
 from receiver.errors import UsageError
 from receiver.live.serve import parse_host_port
 
@@ -49,8 +50,10 @@ def is_loopback(host: str) -> bool:
 class DashboardServer:
     """``start`` binds and serves in a daemon thread; ``url`` says where; ``stop`` ends it cleanly."""
 
-    def __init__(self, wsgi_app, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT) -> None:
+    def __init__(self, wsgi_app, host: str = DEFAULT_HOST, port: int = DEFAULT_PORT, warmer: Warmer | None = None,
+                 ) -> None:
         self.host = host
+        self.warmer = warmer  # started and stopped with the server
         self.guard = HostGuard(wsgi_app, host)
         self._sockets: dict = {}  # waitress' socket map: the listening socket, the connections, its trigger
         self._server = create_server(self.guard, map=self._sockets, host=host, port=port, threads=THREADS,
@@ -73,6 +76,8 @@ class DashboardServer:
     def start(self) -> None:
         """Serve from the daemon thread; ``stop`` ends it."""
         self._thread.start()
+        if self.warmer is not None:
+            self.warmer.start()
 
     def _serve(self) -> None:
         # waitress' own run() loops until its socket map is empty; closing the
@@ -88,6 +93,8 @@ class DashboardServer:
 
     def stop(self) -> None:
         """No new connections, the requests being served answered, then every socket closed."""
+        if self.warmer is not None:
+            self.warmer.stop()
         self._server.accepting = False
         self._server.task_dispatcher.shutdown(timeout=STOP_S)
         if not self._thread.is_alive():  # never started, or already stopped
@@ -105,8 +112,11 @@ def start_dashboard(station: Station, settings: Settings, where: str | None, say
     127.0.0.1:47480) and tell ``say`` the URL; a port that cannot be bound is a
     one-line UsageError."""
     host, port = parse_host_port(where, DEFAULT_HOST) if where else (DEFAULT_HOST, DEFAULT_PORT)
+    # A page opened late on a long session, or a robot picked later, draws from block summaries
+    # kept since the receiver started.
+    warmer = Warmer(station.live, settings.loop_threshold_s) if station.live is not None else None
     try:
-        server = DashboardServer(create_app(station, settings).server, host, port)
+        server = DashboardServer(create_app(station, settings).server, host, port, warmer)
     except OSError as exc:
         raise UsageError(f"cannot serve the dashboard on {host}:{port}: {exc.strerror or exc}") from exc
     server.start()

@@ -90,6 +90,13 @@ def drawable(raw: RawHistory, robot: str, since_rx: float) -> dict[str, tuple[np
     return out
 
 
+def warm_signals(raw: RawHistory, robot: str) -> None:
+    """Keep the summaries of ``robot``'s full signal blocks ahead of a page drawing them."""
+    held = raw.signal_cut(robot)
+    if held is not None:
+        _blocks(raw, robot).window(held[1].pieces)
+
+
 _BLOCKS: weakref.WeakKeyDictionary[RawHistory, dict[str, RobotSignalBlocks]] = weakref.WeakKeyDictionary()
 _BLOCKS_LOCK = threading.Lock()
 

@@ -12,6 +12,7 @@ same over 10 s or 600 s. Reads the hub; never draws.
 
 from __future__ import annotations
 
+import logging
 import math
 import threading
 import weakref
@@ -32,10 +33,13 @@ from dashboard.block_summary import (
     summarise,
 )
 from receiver.analysis.growth import Growth, growth
+from dashboard.signal_blocks import warm_signals
+from dashboard.sources import LiveSource
 from receiver.live.hub import Hub
 from receiver.odometry.counts import SampleKind
 
 _STEP = int(SampleKind.STEP)
+log = logging.getLogger("podwatch.dashboard")
 # Blocks of other robots summarised per refresh at most (about a millisecond
 # each): a 1 kHz robot fills one every 4 s, a page refreshes several times a second.
 WARM_BLOCKS = 2
@@ -201,9 +205,9 @@ class Reader:
         )
 
 
-def warm(hub: Hub, robot: str, threshold_s: float, most_new: int = WARM_BLOCKS) -> None:
-    """Summarise a few of ``robot``'s new full blocks ahead of a page showing it (a robot
-    picked later then draws from kept summaries)."""
+def warm(hub: Hub, robot: str, threshold_s: float, most_new: int | None = WARM_BLOCKS) -> None:
+    """Summarise ``robot``'s new full blocks (at most ``most_new``; all: None) ahead of a page
+    showing it (a robot picked later then draws from kept summaries)."""
     robot_blocks(hub, robot, threshold_s).walk(hub.cut(robot).pieces, most_new)
 
 
@@ -290,3 +294,44 @@ def robot_blocks(hub: Hub, robot: str, threshold_s: float) -> RobotBlocks:
     with _BLOCKS_LOCK:
         per_hub = _BLOCKS.setdefault(hub, {})
         return per_hub.setdefault((robot, threshold_s), RobotBlocks(threshold_s))
+
+
+class Warmer:
+    """Summarises every robot's new full blocks of a live source once a second, in a thread of
+    its own, so that a page opened late on a long session, or a robot picked later, draws from
+    kept summaries at once. Holds the source weakly: it ends when the source is gone, or on ``stop``."""
+
+    def __init__(self, source: LiveSource, threshold_s: float, every_s: float = 1.0) -> None:
+        self._source = weakref.ref(source)
+        self.threshold_s = threshold_s
+        self.every_s = every_s
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._run, name="podwatch-summaries", daemon=True)
+
+    def start(self) -> Warmer:
+        """Start the thread; returns self."""
+        self._thread.start()
+        return self
+
+    def stop(self) -> None:
+        """End the thread (a summary under way is finished first)."""
+        self._stop.set()
+        if self._thread.is_alive():
+            self._thread.join()
+
+    def _run(self) -> None:
+        while not self._stop.wait(self.every_s):
+            source = self._source()
+            if source is None:
+                return
+            try:
+                self.warm_once(source)
+            except Exception:  # our own bug: the page reads the rows itself then; never a traceback on the terminal
+                log.debug("summarising the live rows failed", exc_info=True)
+            del source
+
+    def warm_once(self, source: LiveSource) -> None:
+        """Summarise what is new of every robot's result rows and signals."""
+        for robot in source.hub.snapshot(0.0, loop_stats=False):
+            warm(source.hub, robot, self.threshold_s, most_new=None)
+            warm_signals(source.raw, robot)

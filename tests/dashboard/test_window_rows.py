@@ -138,3 +138,32 @@ def test_an_append_reads_the_new_rows_with_the_same_unwrapping():
     assert len(shared) > 5
     np.testing.assert_allclose(whole[a, 2], new.unwrapped[b], atol=1e-9)
     assert reader.rows_since(rows["rx"][-1]) is None
+
+
+def test_the_warmer_keeps_every_robots_summaries_and_ends_with_its_source(monkeypatch):
+    import gc
+
+    from dashboard import window_rows
+    from dashboard.sources import LiveSource
+    from receiver.live.hub import Hub
+
+    hub = Hub({})
+    rows = session_rows(9000, seed=2)  # full blocks of each session's ring and part of one more
+    for robot in ("bot-a", "bot-b"):
+        hub.sessions[robot] = hub._new_session(robot, None)
+        hub.sessions[robot].ring.append(**rows)
+    source = LiveSource(hub)
+    made = []
+    real = window_rows.summarise
+    monkeypatch.setattr(window_rows, "summarise", lambda *args: made.append(1) or real(*args))
+    warmer = window_rows.Warmer(source, THRESHOLD_S, every_s=0.01)
+    warmer.warm_once(source)
+    full = sum(hi == len(block["rx"]) for robot in hub.sessions for block, _, hi in hub.cut(robot).pieces)
+    assert full >= 4 and len(made) == full  # every full block of every robot
+    Reader.of(hub, "bot-b", THRESHOLD_S).window(0.0, INCH_M)
+    assert len(made) == full  # a page then reads them from what was kept
+    warmer.start()
+    del source
+    gc.collect()
+    warmer._thread.join(timeout=5.0)
+    assert not warmer._thread.is_alive()
