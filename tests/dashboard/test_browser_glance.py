@@ -194,3 +194,53 @@ def test_a_spin_is_one_line_replays_say_where_they_stand_and_the_look_is_our_own
         wait_for(lambda: has_badge(page, "replay-ended", "replay ended"), "the replay-ended badge", page)
         status = page.inner_text(f"#{ids.STATUS}")
         assert "receiving" not in status and "messages/s" not in status, status
+
+
+def test_the_receivers_own_troubles_have_badges_of_their_own():
+    # The page of a receiver in this process, so that its health can be set as its threads
+    # set it: a worker that failed (a closed socket) and a recording that stopped (a full
+    # disk). Both are made to happen for real in tests/live/test_serve_process.py.
+    from dashboard.server import start_dashboard
+    from dashboard.settings import Settings
+    from dashboard.sources import LiveSource
+    from dashboard.tabs import Station
+    from receiver.formats.profile_toml import load_profile
+    from receiver.formats.protocol import decode
+    from receiver.live.health import WorkerEvent
+    from receiver.live.hub import Hub
+    from tests.dashboard.conftest import free_port
+    from tests.live.serve_process import message
+
+    profile = load_profile(ROOT / "replay_fixtures" / "practice-bot.toml")
+    hub = Hub({profile.name: profile})
+    station = Station(live=LiveSource(hub))
+    server = start_dashboard(station, Settings(), f"127.0.0.1:{free_port()}", lambda _: None)
+    stop = threading.Event()
+
+    def robot() -> None:
+        seq = 0
+        while not stop.wait(0.01):
+            hub.ingest(*decode(message("practice-bot", seq, 0.01 * seq)), time.time(), "test")
+            hub.process(time.time())
+            seq += 1
+
+    feeding = threading.Thread(target=robot, daemon=True)
+    feeding.start()
+    try:
+        with open_sized(server.url, (1440, 900)) as (page,):
+            wait_for(lambda: has_badge(page, "receiving", "receiving"), "the receiving badge", page)
+            hub.health.worker("udp receive loop", WorkerEvent.CRASHED, "Bad file descriptor")
+            hub.health.stop_recording("No space left on device")
+            wait_for(lambda: has_badge(page, "worker-error", "worker error")
+                     and has_badge(page, "recording-stopped", "recording stopped"), "both badges", page)
+            assert [state for state, _ in badges(page)] == ["worker-error", "recording-stopped", "receiving"]
+            status = page.inner_text(f"#{ids.STATUS}")
+            assert "udp receive loop failed: Bad file descriptor; restarting" in status
+            assert "recording stopped: No space left on device" in status
+            colours = page.evaluate("""() => Array.from(document.querySelectorAll('.topbar .badge'))
+                .filter(b => b.offsetParent !== null).map(b => getComputedStyle(b).backgroundColor)""")
+            assert len(set(colours)) == len(colours)  # each in a colour of its own
+    finally:
+        stop.set()
+        feeding.join()
+        server.stop()

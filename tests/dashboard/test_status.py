@@ -2,7 +2,12 @@
 
 from __future__ import annotations
 
+import re
+from pathlib import Path
+
 import pytest
+
+import dashboard
 
 from dashboard.status import Badge, Replaying, status
 from receiver.live.session import LinkState, RobotSnapshot
@@ -52,3 +57,14 @@ def test_every_badge_has_its_own_class_and_the_line_is_escaped():
                            '&lt;b&gt;, 98 messages/s; no profile for this robot (give one with --profile): not '
                            'recomputed</span>')
     assert line.text().startswith("receiving \u00b7 live")
+
+
+def test_each_badge_has_a_colour_of_its_own_from_the_okabe_ito_palette():
+    # Okabe and Ito, "Color Universal Design" (2008): the eight colours, black among them
+    # (white is the page's own, for the outlined badge).
+    okabe_ito = {"#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7", "#000000", "#000"}
+    css = (Path(dashboard.__file__).parent / "assets" / "style.css").read_text()
+    backgrounds = dict(re.findall(r"\.badge\.([a-z-]+) \{ background: (#[0-9A-Fa-f]+)", css))
+    assert set(backgrounds) == {badge.value for badge in Badge}
+    assert len(set(backgrounds.values())) == len(backgrounds)
+    assert set(backgrounds.values()) - okabe_ito == {"#fff"}  # replay ended: outlined in black
