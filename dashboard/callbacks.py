@@ -7,6 +7,7 @@ few lines. The recording opener's callbacks are in recording_opener.py.
 from __future__ import annotations
 
 import math
+import time
 
 from dash import Dash, Input, Output, State, no_update
 
@@ -22,10 +23,10 @@ DISAGREEMENT_IDS = (ids.POSITION_NOW, ids.POSITION_WORST, ids.POSITION_GROWTH, i
                     ids.HEADING_GROWTH, ids.GROWTH_STRETCH)
 LOOP_IDS = (ids.LOOP_RATE, ids.LOOP_MEAN, ids.LOOP_P95, ids.LOOP_MAX, ids.LOOP_LONG, ids.JITTER)
 READOUT_IDS = DISAGREEMENT_IDS + LOOP_IDS
-# The link table and the status line change with every message counted;
-# painting them once a second is live enough (and heals a lost paint within
-# a second).
+# The link table changes with every message counted; painting it once a
+# second is live enough (and heals a lost paint within a second).
 SLOW_TEXTS_S = 1.0
+wall_clock = time.monotonic  # what paces the link table (a test may replace it)
 
 
 def register(app: Dash, station: Station, settings: Settings) -> None:
@@ -76,11 +77,13 @@ def register(app: Dash, station: Station, settings: Settings) -> None:
         jitter_s = snap.jitter_s if snap is not None else float("nan")
         texts = readout_texts.disagreement_values(refreshed.disagreement, refreshed.unit)
         texts += readout_texts.loop_values(refreshed.loop, jitter_s)
-        paint = {"text": dict(zip(READOUT_IDS, texts)), "html": {}}
+        # The status line with every answer: a badge must change the moment its state does.
+        paint = {"text": dict(zip(READOUT_IDS, texts)), "html": {ids.STATUS: refreshed.status.html()}}
+        # Paced by the wall clock, not the source's: a replay's clock stands still when it ends.
+        wall = wall_clock()
         slow_at = (cursor or {}).get("slow_at", -math.inf)
-        if refreshed.figures or not 0.0 <= refreshed.now - slow_at < SLOW_TEXTS_S:
-            refreshed.cursor["slow_at"] = refreshed.now
-            paint["html"][ids.STATUS] = refreshed.status.html()
+        if refreshed.figures or not 0.0 <= wall - slow_at < SLOW_TEXTS_S:
+            refreshed.cursor["slow_at"] = wall
             paint["html"][ids.LINK_TABLE] = readout_texts.link_table(
                 refreshed.snapshots, refreshed.now, robot, refreshed.unattributed, refreshed.problems + refreshed.notes
             )

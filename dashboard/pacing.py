@@ -55,9 +55,10 @@ function(n, cursor, request, barClass) {{
 """
 # Each answer also paints texts (cursor["paint"]: readouts, status line, link
 # table) straight into elements that hold no children for React, sparing a
-# round of Dash's bookkeeping per text. Every answer carries every readout:
-# Dash may run this once for two close answers, and texts that changed only in
-# the first would be lost. The page skips unchanged texts.
+# round of Dash's bookkeeping per text. Every answer carries every readout and
+# the status line: Dash may run this once for two close answers, and texts that
+# changed only in the first would be lost. The page skips unchanged texts and
+# markup (the markup last painted is kept on the element).
 PAINT_AND_ASK_NEXT = f"""
 function(cursor, request, paused, barClass) {{
     const paint = (cursor && cursor.paint) || {{}};
@@ -67,7 +68,10 @@ function(cursor, request, paused, barClass) {{
     }}
     for (const [id, markup] of Object.entries(paint.html || {{}})) {{
         const element = document.getElementById(id);
-        if (element) {{ element.innerHTML = markup; }}
+        if (element && element.dataset.painted !== markup) {{
+            element.innerHTML = markup;
+            element.dataset.painted = markup;
+        }}
     }}
     if (paused || !cursor || !request || cursor.tick !== request.tick) {{ return; }}
     const next = () => {{

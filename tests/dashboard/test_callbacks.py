@@ -164,8 +164,9 @@ class Clock:
         return self.now
 
 
-def test_an_update_paints_every_readout_and_the_table_once_a_second():
-    clock = Clock()
+def test_an_update_paints_every_readout_and_the_status_and_the_table_once_a_second(monkeypatch):
+    clock, wall = Clock(), Clock()
+    monkeypatch.setattr(callbacks, "wall_clock", wall)
     source = ReplaySource(read_recording(REVERSED), clock=clock)
     app = create_app(replay_station(source))
     source.seek(3.0)
@@ -180,15 +181,27 @@ def test_an_update_paints_every_readout_and_the_table_once_a_second():
                                          f'class="status-detail">{REVERSED}, at 3.0 s of 10.0 s \u00b7 practice-bot'
                                          '</span>')
 
-    source.seek(3.5)  # half a second on: every readout again (the page may have missed the last), no table yet
-    state.update({f"{ids.REQUEST}.data": {"tick": 2}, f"{ids.CURSOR}.data": first})
-    second = call(app, f"{ids.CURSOR}.data", state, [f"{ids.REQUEST}.data"])[ids.CURSOR]["data"]
-    assert set(second["paint"]["text"]) == set(callbacks.READOUT_IDS) and second["paint"]["html"] == {}
+    def next_answer(cursor: dict, tick: int) -> dict:
+        state.update({f"{ids.REQUEST}.data": {"tick": tick}, f"{ids.CURSOR}.data": cursor})
+        return call(app, f"{ids.CURSOR}.data", state, [f"{ids.REQUEST}.data"])[ids.CURSOR]["data"]
+
+    # Half a second on: every readout and the status again (the page may have missed the last),
+    # no table yet.
+    source.seek(3.5)
+    wall.now += 0.5
+    second = next_answer(first, 2)
+    assert set(second["paint"]["text"]) == set(callbacks.READOUT_IDS) and set(second["paint"]["html"]) == {ids.STATUS}
     assert second["paint"]["text"][ids.POSITION_NOW] != paint["text"][ids.POSITION_NOW]
-    source.seek(4.6)
-    state.update({f"{ids.REQUEST}.data": {"tick": 3}, f"{ids.CURSOR}.data": second})
-    third = call(app, f"{ids.CURSOR}.data", state, [f"{ids.REQUEST}.data"])[ids.CURSOR]["data"]
+    # The replay played to its end and stopped: its clock stands still, the page's does not.
+    source.play()
+    source.seek(source.duration_s)
+    source.advance()
+    wall.now += 1.1
+    third = next_answer(second, 3)
     assert set(third["paint"]["html"]) == {ids.LINK_TABLE, ids.STATUS}
+    assert third["paint"]["html"][ids.STATUS].startswith('<span class="badge replay-ended">replay ended</span>')
+    wall.now += 1.1
+    assert ids.LINK_TABLE in next_answer(third, 4)["paint"]["html"]
 
 
 def test_back_to_live_hides_the_replay_bar_and_itself():
