@@ -169,6 +169,10 @@ def test_a_spin_is_one_line_replays_say_where_they_stand_and_the_look_is_our_own
             assert b["y"] + b["height"] <= min(first_graph["y"], 1180), readout
         for control in (f"#{ids.FOLLOW}", f"#{ids.OPEN}", f"#{ids.ROBOT}", f"#{ids.WINDOW}"):
             assert box(control)["height"] >= 40, control  # a finger's width
+        toolbar = tablet.evaluate("""() => Array.from(document.querySelectorAll('.modebar-btn'))
+            .filter(b => b.offsetParent !== null)  // the graphs on the page now, not those of closed panels
+            .map(b => { const r = b.getBoundingClientRect(); return Math.min(r.width, r.height); })""")
+        assert len(toolbar) >= 20 and min(toolbar) >= 40  # the graphs' zoom, pan, reset and download buttons
         ARTIFACTS.mkdir(exist_ok=True)
         tablet.screenshot(path=str(ARTIFACTS / "dashboard-820x1180.png"))
         page.screenshot(path=str(ARTIFACTS / "dashboard-1440x900.png"))
