@@ -4,10 +4,10 @@ Owns the one definition of growth that the command line and the page quote:
 the change of the disagreement per metre driven and per turn turned, over a
 stated stretch (from the last re-anchor to the last compared sample), only
 once the robot has driven or turned enough for a rate to mean something.
-``stand_in`` lets a caller that keeps
-summaries of rows that never change (the page, over a ring buffer's full
-blocks) quote the same growth over a long window from a few rows.
-Pure numpy over recompute rows; never recomputes a pose and never reads a file.
+``stand_in`` lets a caller that keeps summaries of rows that never change
+(the page, over a ring buffer's full blocks) quote the same growth over a
+long window from a few rows. Pure numpy over recompute rows; never
+recomputes a pose and never reads a file.
 """
 
 from __future__ import annotations
