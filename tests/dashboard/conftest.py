@@ -4,6 +4,7 @@ Playwright, talking to 127.0.0.0/8 only, and a running ``podwatch demo``."""
 from __future__ import annotations
 
 import ipaddress
+import os
 import re
 import shutil
 import signal
@@ -162,3 +163,10 @@ def open_from_list(page, name: str) -> None:
     page.click(f"#{ids.RECORDING_CHOICE}")
     page.get_by_role("option", name=re.compile(re.escape(name))).click()
     page.click(f"#{ids.OPEN}")
+
+
+def keep_for_readme(picture: Path, readme_picture: Path) -> None:
+    """Copy a screenshot over the README's picture when PODWATCH_README_PICTURES=1: a plain
+    test run leaves the checkout as it was (the picture stays in artifacts/)."""
+    if os.environ.get("PODWATCH_README_PICTURES") == "1":
+        shutil.copyfile(picture, readme_picture)

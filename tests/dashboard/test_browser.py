@@ -11,13 +11,12 @@ from __future__ import annotations
 import math
 import os
 import re
-import shutil
 import time
 
 import pytest
 
 from dashboard import ids
-from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_from_list, open_page
+from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, keep_for_readme, open_from_list, open_page
 
 sync_api = pytest.importorskip("playwright.sync_api")
 
@@ -87,7 +86,7 @@ def test_live_page_shows_the_disagreement_then_a_replay_pauses_and_scrubs(demo_u
         ARTIFACTS.mkdir(exist_ok=True)
         page.wait_for_timeout(1500)  # let the last redraw settle for the picture
         page.screenshot(path=str(ARTIFACTS / "dashboard.png"), full_page=True)
-        shutil.copyfile(ARTIFACTS / "dashboard.png", README_SCREENSHOT)
+        keep_for_readme(ARTIFACTS / "dashboard.png", README_SCREENSHOT)
 
         # A recording opened from the page replays; it can be paused and scrubbed.
         open_from_list(page, REVERSED.name)

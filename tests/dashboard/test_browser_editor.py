@@ -15,7 +15,6 @@ import json
 import os
 import re
 import shlex
-import shutil
 import subprocess
 import sys
 import time
@@ -27,7 +26,7 @@ import pytest
 from dashboard import ids
 from dashboard.editor_figures import POSITION_EDITED, TRACK_EDITED
 from receiver.formats.profile_toml import profile_from_table
-from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_from_list, open_page
+from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, keep_for_readme, open_from_list, open_page
 
 pytest.importorskip("playwright.sync_api")
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
@@ -109,7 +108,7 @@ def test_the_editor_takes_the_diagnosis_flips_a_wheel_and_matches_recompute(demo
         page.wait_for_timeout(1000)  # let the last redraw settle for the picture
         editor = page.locator(".card.editor")
         editor.screenshot(path=str(ARTIFACTS / "editor.png"))
-        shutil.copyfile(ARTIFACTS / "editor.png", EDITOR_SCREENSHOT)
+        keep_for_readme(ARTIFACTS / "editor.png", EDITOR_SCREENSHOT)
 
         with page.expect_download() as download:
             page.click(f"#{ids.EDITOR_DOWNLOAD}")

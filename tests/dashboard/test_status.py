@@ -8,7 +8,6 @@ from pathlib import Path
 import pytest
 
 import dashboard
-
 from dashboard.status import Badge, Replaying, status
 from receiver.live.session import LinkState, RobotSnapshot
 
