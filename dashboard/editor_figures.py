@@ -14,9 +14,6 @@ from typing import NamedTuple
 import numpy as np
 
 from dashboard.figures import (
-    FIELD_LINE,
-    FIELD_TILES,
-    NEUTRAL,
     RECOMPUTE_COLOUR,
     REPORTED_COLOUR,
     REPORTED_NAME,
@@ -24,6 +21,7 @@ from dashboard.figures import (
     _line,
     _stacked_axes,
     as_list,
+    field_shapes,
 )
 
 # Okabe-Ito bluish green: apart from the loaded recompute's blue and the
@@ -44,20 +42,6 @@ class EditorPaths(NamedTuple):
     reported_xy: np.ndarray
     loaded_xy: np.ndarray
     edited_xy: np.ndarray
-
-
-def field_shapes(field_size: float) -> list[dict]:
-    """The field's border and tile lines, centred on the origin, under the traces."""
-    half = field_size / 2.0
-    tile = field_size / FIELD_TILES
-    line = {"color": FIELD_LINE, "width": 1}
-    shapes = [{"type": "rect", "x0": -half, "x1": half, "y0": -half, "y1": half, "layer": "below",
-               "line": {"color": NEUTRAL, "width": 2}}]
-    for k in range(1, FIELD_TILES):
-        at = -half + k * tile
-        shapes.append({"type": "line", "x0": at, "x1": at, "y0": -half, "y1": half, "layer": "below", "line": line})
-        shapes.append({"type": "line", "x0": -half, "x1": half, "y0": at, "y1": at, "layer": "below", "line": line})
-    return shapes
 
 
 def editor_track(paths: EditorPaths, field_size: float, unit: str) -> dict:

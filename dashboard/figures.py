@@ -151,6 +151,20 @@ def _track_columns(points: TrackPoints, footprint_size: float) -> tuple[list, li
     return xs, ys
 
 
+def field_shapes(field_size: float) -> list[dict]:
+    """The field's border and tile lines, centred on the origin, under the traces."""
+    half = field_size / 2.0
+    tile = field_size / FIELD_TILES
+    line = {"color": FIELD_LINE, "width": 1}
+    shapes = [{"type": "rect", "x0": -half, "x1": half, "y0": -half, "y1": half, "layer": "below",
+               "line": {"color": NEUTRAL, "width": 2}}]
+    for k in range(1, FIELD_TILES):
+        at = -half + k * tile
+        shapes.append({"type": "line", "x0": at, "x1": at, "y0": -half, "y1": half, "layer": "below", "line": line})
+        shapes.append({"type": "line", "x0": -half, "x1": half, "y0": at, "y1": at, "layer": "below", "line": line})
+    return shapes
+
+
 def track_map(points: TrackPoints, field_size: float, footprint_size: float, unit: str) -> dict:
     """The field seen from above, origin at its centre: both paths, the re-anchor
     points and each source's current footprint; lengths in ``unit``."""
@@ -167,18 +181,10 @@ def track_map(points: TrackPoints, field_size: float, footprint_size: float, uni
     for k, (colour, name) in enumerate(((RECOMPUTE_COLOUR, RECOMPUTE_NAME), (REPORTED_COLOUR, REPORTED_NAME)), 3):
         data.append({"type": "scatter", "mode": "lines", "x": xs[k], "y": ys[k], "name": f"{name}, now",
                      "showlegend": False, "hoverinfo": "skip", "line": {"color": colour, "width": 2.5}})
-    tile = field_size / FIELD_TILES
-    line = {"color": FIELD_LINE, "width": 1}
-    shapes = [{"type": "rect", "x0": -half, "x1": half, "y0": -half, "y1": half, "layer": "below",
-               "line": {"color": NEUTRAL, "width": 2}}]
-    for k in range(1, FIELD_TILES):
-        at = -half + k * tile
-        shapes.append({"type": "line", "x0": at, "x1": at, "y0": -half, "y1": half, "layer": "below", "line": line})
-        shapes.append({"type": "line", "x0": -half, "x1": half, "y0": at, "y1": at, "layer": "below", "line": line})
     pad = 0.04 * field_size
     span = [-half - pad, half + pad]
     layout = _layout(
-        shapes=shapes,
+        shapes=field_shapes(field_size),
         showlegend=False,  # the page shows a legend key above the map
         xaxis={"title": {"text": f"x ({unit}), forward, REP 103"}, "range": span, "zeroline": False,
                "constrain": "domain"},

@@ -174,25 +174,15 @@ def make_path(name: str, rng: np.random.Generator) -> Motion:
         # The push test: one straight 48 in push from rest to rest, forward or leftward.
         move = "forward" if name == "push-forward" else "left"
         return _moves((0.0, 0.0, 0.0), [("pause", 0.5, 0.0), (move, 48.0, 12.0), ("pause", 1.0, 0.0)], repeat=False)
-    if name == "guided":
+    if name in ("guided", "guided-curving"):
         # The hand-push check: a person pushes the robot 18 in forward, 18 in
-        # left, then turns it 120 degrees counter-clockwise, resting about 1 s between.
+        # left, then turns it 120 degrees counter-clockwise, resting about 1 s
+        # between. Done carelessly ("guided-curving"), the forward push curves
+        # 30 degrees to the left on its way (the robot was pushed at one corner).
+        forward = ("forward", 18.0, 12.0) if name == "guided" else ("forward", 18.0, 12.0, math.radians(30.0))
         steps = [
             ("pause", 1.0, 0.0),
-            ("forward", 18.0, 12.0),
-            ("pause", 1.0, 0.0),
-            ("left", 18.0, 12.0),
-            ("pause", 1.0, 0.0),
-            ("turn", math.radians(120.0), 1.0),
-            ("pause", 1.0, 0.0),
-        ]
-        return _moves((0.0, 0.0, 0.0), steps, repeat=False)
-    if name == "guided-curving":
-        # The hand-push check done carelessly: the forward push curves 30
-        # degrees to the left on its way (the robot was pushed at one corner).
-        steps = [
-            ("pause", 1.0, 0.0),
-            ("forward", 18.0, 12.0, math.radians(30.0)),
+            forward,
             ("pause", 1.0, 0.0),
             ("left", 18.0, 12.0),
             ("pause", 1.0, 0.0),

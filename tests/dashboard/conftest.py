@@ -170,3 +170,20 @@ def keep_for_readme(picture: Path, readme_picture: Path) -> None:
     test run leaves the checkout as it was (the picture stays in artifacts/)."""
     if os.environ.get("PODWATCH_README_PICTURES") == "1":
         shutil.copyfile(picture, readme_picture)
+
+
+WAIT_S = 30.0  # for things to show up on a loaded machine; not a speed check
+
+
+def wait_for(condition, what: str, page=None, deadline_s: float = WAIT_S, every_s: float = 0.2):
+    """Poll ``condition`` until it returns something true (which is returned); fail after
+    ``deadline_s`` naming ``what`` (and, given a ``page``, what its status line says)."""
+    from dashboard import ids
+
+    deadline = time.monotonic() + deadline_s
+    while not (found := condition()):
+        if time.monotonic() > deadline:
+            shown = "" if page is None else f"; the status line says {page.inner_text(f'#{ids.STATUS}')!r}"
+            raise AssertionError(f"gave up waiting for {what}{shown}")
+        time.sleep(every_s)
+    return found

@@ -11,17 +11,24 @@ from __future__ import annotations
 import math
 import os
 import re
-import time
 
 import pytest
 
 from dashboard import ids
-from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, keep_for_readme, open_from_list, open_page
+from tests.dashboard.conftest import (
+    ARTIFACTS,
+    CHROMIUM,
+    REVERSED,
+    ROOT,
+    keep_for_readme,
+    open_from_list,
+    open_page,
+    wait_for,
+)
 
 sync_api = pytest.importorskip("playwright.sync_api")
 
 README_SCREENSHOT = ROOT / "dashboard" / "screenshot.png"
-DEADLINE_S = 30.0  # for things to show up; not a speed check
 DIVERGED_IN = 10.0  # the reversed encoder puts the two poses this far apart within seconds
 
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
@@ -34,12 +41,6 @@ def number(page, component_id: str) -> float:
     return float(found.group(1)) if found else math.nan
 
 
-def wait_for(condition, what: str) -> None:
-    deadline = time.monotonic() + DEADLINE_S
-    while not condition():
-        if time.monotonic() > deadline:
-            raise AssertionError(f"gave up waiting for {what}")
-        time.sleep(0.2)
 
 
 PATH_ENDS = """() => {

@@ -17,8 +17,8 @@ import re
 import shlex
 import subprocess
 import sys
-import time
 import tomllib
+from functools import partial
 
 import numpy as np
 import pytest
@@ -26,21 +26,25 @@ import pytest
 from dashboard import ids
 from dashboard.editor_figures import POSITION_EDITED, TRACK_EDITED
 from receiver.formats.profile_toml import profile_from_table
-from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, keep_for_readme, open_from_list, open_page
+from tests.dashboard.conftest import (
+    ARTIFACTS,
+    CHROMIUM,
+    REVERSED,
+    ROOT,
+    keep_for_readme,
+    open_from_list,
+    open_page,
+    wait_for,
+)
 
 pytest.importorskip("playwright.sync_api")
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
 
 DEADLINE_S = 45.0  # for things to show up on a loaded machine; not a speed check
+wait_for = partial(wait_for, deadline_s=DEADLINE_S)
 EDITOR_SCREENSHOT = ROOT / "dashboard" / "screenshot-editor.png"
 
 
-def wait_for(condition, what: str) -> None:
-    deadline = time.monotonic() + DEADLINE_S
-    while not condition():
-        if time.monotonic() > deadline:
-            raise AssertionError(f"gave up waiting for {what}")
-        time.sleep(0.2)
 
 
 def field(key: str) -> str:

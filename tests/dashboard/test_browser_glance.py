@@ -19,7 +19,7 @@ import time
 import pytest
 
 from dashboard import ids
-from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_from_list, open_sized
+from tests.dashboard.conftest import ARTIFACTS, CHROMIUM, REVERSED, ROOT, open_from_list, open_sized, wait_for
 
 pytest.importorskip("playwright.sync_api")
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
@@ -27,17 +27,9 @@ pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian pac
 sys.path.insert(0, str(ROOT / "receiver" / "senders" / "python"))
 from podwatch_sender import OdometrySender  # noqa: E402  (a file robot code copies, not a package)
 
-DEADLINE_S = 30.0  # for things to show up; not a speed check
 LIBRARY_PURPLE = "rgb(127, 75, 196)"  # Dash 4's own highlight colour (--Dash-Fill-Interactive-Strong)
 
 
-def wait_for(condition, what: str, page=None) -> None:
-    deadline = time.monotonic() + DEADLINE_S
-    while not condition():
-        if time.monotonic() > deadline:
-            shown = "" if page is None else f"; the status line says {page.inner_text(f'#{ids.STATUS}')!r}"
-            raise AssertionError(f"gave up waiting for {what}{shown}")
-        time.sleep(0.2)
 
 
 def badges(page) -> list[tuple[str, str]]:

@@ -23,7 +23,7 @@ import pytest
 
 from dashboard import ids
 from dashboard.layout import MODEBAR_BUTTONS
-from tests.dashboard.conftest import CHROMIUM, REVERSED, ROOT, free_port, open_from_list, open_page
+from tests.dashboard.conftest import CHROMIUM, REVERSED, ROOT, free_port, open_from_list, open_page, wait_for
 
 sync_api = pytest.importorskip("playwright.sync_api")
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
@@ -34,13 +34,6 @@ BUTTON_TITLES = {"zoom2d": "Zoom", "pan2d": "Pan", "resetScale2d": "Reset axes",
 GRAPHS = (ids.TRACK, ids.ERRORS, ids.POSES, ids.LOOP, ids.LOOP_HISTOGRAM)
 
 
-def wait_for(condition, what: str):
-    deadline = time.monotonic() + DEADLINE_S
-    while not (found := condition()):
-        if time.monotonic() > deadline:
-            raise AssertionError(f"gave up waiting for {what}")
-        time.sleep(0.1)
-    return found
 
 
 @pytest.fixture

@@ -6,26 +6,18 @@ from __future__ import annotations
 
 import os
 import re
-import time
 
 import pytest
 
 from dashboard import ids
-from tests.dashboard.conftest import CHROMIUM, REVERSED, _loopback_only, open_from_list, open_pages
+from tests.dashboard.conftest import CHROMIUM, REVERSED, _loopback_only, open_from_list, open_pages, wait_for
 from tests.dashboard.test_browser_editor import choose, field, options
 
 pytest.importorskip("playwright.sync_api")
 pytestmark = pytest.mark.skipif(not os.path.exists(CHROMIUM), reason="Debian package chromium is not installed")
 
-DEADLINE_S = 30.0  # for things to show up; not a speed check
 
 
-def wait_for(condition, what: str) -> None:
-    deadline = time.monotonic() + DEADLINE_S
-    while not condition():
-        if time.monotonic() > deadline:
-            raise AssertionError(f"gave up waiting for {what}")
-        time.sleep(0.2)
 
 
 def status(page) -> str:
