@@ -21,10 +21,10 @@ from dash import Dash, Input, Output, State, dcc, html, no_update
 
 from dashboard import ids
 from dashboard.compare_runs import Run, compare_tables, curves_figure, runs_of
-from dashboard.recordings_folder import Limits, read_from_folder
+from dashboard.recordings_folder import UNREADABLE, Limits, read_from_folder, why_unreadable
 from dashboard.settings import Settings
-from dashboard.tabs import Station
-from receiver.errors import PodwatchError
+from dashboard.tabs import Station, remember
+from receiver.odometry.robot import counts_per_message
 
 POLL_MS = 1000  # how often a tab looks for its comparison's progress while one runs
 MOST_RECORDINGS = 8  # one colour each (workbench_figures.RUN_COLOURS), and a bounded read
@@ -65,10 +65,7 @@ class Comparer:
             self._busy = True
             self._serial += 1
             comparison = Comparison(self._serial, f"reading 1 of {len(names)}: {names[0]} ...")
-            self._results.pop(view_id, None)
-            self._results[view_id] = comparison
-            while len(self._results) > KEPT_RESULTS:
-                del self._results[next(iter(self._results))]
+            remember(self._results, view_id, comparison, KEPT_RESULTS)
         self._thread = threading.Thread(target=self._compare, args=(comparison, names), name="podwatch-compare",
                                         daemon=True)
         self._thread.start()
@@ -76,7 +73,7 @@ class Comparer:
 
     def _compare(self, comparison: Comparison, names: list[str]) -> None:
         profiles = self.station.profiles
-        lengths = {name: len(p.wheels) for name, p in profiles.items()}
+        lengths = counts_per_message(profiles)
         runs, notes = [], []
         for k, name in enumerate(names, 1):
             comparison.progress = f"reading {k} of {len(names)}: {name} ..."
@@ -85,12 +82,8 @@ class Comparer:
                 found, skipped = runs_of(data, profiles, self.points)
                 runs += found
                 notes += skipped + [f"{name}: {warning}" for warning in data.warnings]
-            except PodwatchError as exc:
-                notes.append(f"{name}: left out: {exc}")
-            except OSError as exc:
-                notes.append(f"{name}: left out: {exc.strerror or exc}")
-            except MemoryError:
-                notes.append(f"{name}: left out: not enough memory")
+            except UNREADABLE as exc:
+                notes.append(f"{name}: left out: {why_unreadable(exc)}")
         with self._lock:
             comparison.runs, comparison.notes = runs, notes
             comparison.progress = f"compared {len(runs)} run{'' if len(runs) == 1 else 's'} of {len(names)} recording" \

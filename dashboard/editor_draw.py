@@ -15,8 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from dashboard.downsample import pick_rows
 from dashboard.block_summary import ANCHOR_KINDS, unwrap_heading_error
+from dashboard.downsample import pick_rows
 from dashboard.editor_figures import EditorPaths, editor_disagreement, editor_track
 from dashboard.workbench_session import Session
 from receiver.analysis.compare import RunRow, row_from_result

@@ -21,11 +21,12 @@ from dash import Dash, Input, Output, State, dcc, html, no_update
 
 from dashboard import ids
 from dashboard.pacing import triggered_ids
-from dashboard.recordings_folder import Limits, list_recordings, read_from_folder
+from dashboard.recordings_folder import UNREADABLE, Limits, list_recordings, read_from_folder, why_unreadable
 from dashboard.settings import Settings
-from dashboard.tabs import Station
+from dashboard.tabs import Station, remember
 from receiver.errors import PodwatchError
 from receiver.formats.recording import RecordingData
+from receiver.odometry.robot import counts_per_message
 
 CHOOSE = "choose a recording"
 LIST_EVERY_MS = 1000  # how often the page looks for new recordings and for the end of an open
@@ -76,19 +77,13 @@ class Opener:
     def _open(self, view_id: str | None, name: str, serial: int) -> None:
         profiles = self.station.profiles
         try:
-            data = self._read(self.folder, name, {n: len(p.wheels) for n, p in profiles.items()}, self.limits)
+            data = self._read(self.folder, name, counts_per_message(profiles), self.limits)
             outcome = Outcome(serial, self.station.open(view_id, data), True)
-        except PodwatchError as exc:
-            outcome = Outcome(serial, f"cannot open: {exc}", False)
-        except OSError as exc:
-            outcome = Outcome(serial, f"cannot open {name}: {exc.strerror or exc}", False)
-        except MemoryError:
-            outcome = Outcome(serial, f"cannot open {name}: not enough memory", False)
+        except UNREADABLE as exc:
+            place = "" if isinstance(exc, PodwatchError) else f" {name}"  # our own errors name the file
+            outcome = Outcome(serial, f"cannot open{place}: {why_unreadable(exc)}", False)
         with self._lock:
-            self._outcomes.pop(view_id, None)
-            self._outcomes[view_id] = outcome
-            while len(self._outcomes) > KEPT_OUTCOMES:
-                del self._outcomes[next(iter(self._outcomes))]
+            remember(self._outcomes, view_id, outcome, KEPT_OUTCOMES)
             self._busy = None
 
     def outcome(self, view_id: str | None) -> Outcome | None:

@@ -21,7 +21,7 @@ from datetime import datetime
 from pathlib import Path
 from typing import BinaryIO, Callable, Iterator
 
-from receiver.errors import RecordingError
+from receiver.errors import PodwatchError, RecordingError
 from receiver.formats.protocol import MAX_MESSAGE_BYTES
 from receiver.formats.recording import GZIP_MAGIC, RecordingData, read_recording
 
@@ -233,6 +233,19 @@ def copy_checked(raw: BinaryIO, out: BinaryIO, name: str, limits: Limits = Limit
     if inflate.cut:
         warnings.append("the compressed stream ends early (receiver killed mid-write?); read what was there")
     return warnings
+
+
+# What a read from the folder can fail with, for a caller that reports it in one line (why_unreadable).
+UNREADABLE = (PodwatchError, OSError, MemoryError)
+
+
+def why_unreadable(exc: BaseException) -> str:
+    """One of UNREADABLE in one line: our own error as it says, a system error's reason, or memory."""
+    if isinstance(exc, MemoryError):
+        return "not enough memory"
+    if isinstance(exc, OSError):
+        return exc.strerror or str(exc)
+    return str(exc)
 
 
 def read_from_folder(folder: Path, name: str, ticks_length: dict[str, int] | None = None,

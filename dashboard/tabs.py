@@ -171,3 +171,12 @@ class Station:
             self._tabs.clear()
         for replay in replays:
             replay.stop()
+
+
+def remember(by_tab: dict, view_id: str | None, value: object, most: int) -> None:
+    """Keep ``value`` as the tab's newest in ``by_tab`` (insertion order = age), forgetting the
+    oldest tabs past ``most``: what a background job reports back to the tab that asked."""
+    by_tab.pop(view_id, None)
+    by_tab[view_id] = value
+    while len(by_tab) > most:
+        del by_tab[next(iter(by_tab))]

@@ -32,9 +32,9 @@ from dashboard.block_summary import (
     read_rows,
     summarise,
 )
-from receiver.analysis.growth import Growth, growth
 from dashboard.signal_blocks import warm_signals
 from dashboard.sources import LiveSource
+from receiver.analysis.growth import Growth, growth
 from receiver.live.hub import Hub
 from receiver.odometry.counts import SampleKind
 

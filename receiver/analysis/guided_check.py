@@ -22,11 +22,11 @@ from receiver.odometry.conventions import reported_to_rep103
 from receiver.odometry.integrate import wrap_angle
 from receiver.odometry.kinematics import Kinematics
 from receiver.odometry.robot import (
+    CONVENTION_KEYS,
     HEADING_POSITIVE,
     HEADING_UNITS,
     HEADING_ZEROS,
     Y_AXES,
-    CONVENTION_KEYS,
     Profile,
     Reported,
     inches,

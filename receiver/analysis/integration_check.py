@@ -14,8 +14,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from receiver.analysis.mistakes import Hypothesis
 from receiver.analysis.judgement import Noise, beyond
+from receiver.analysis.mistakes import Hypothesis
 from receiver.analysis.refine import Fit, refine
 from receiver.analysis.sample_clip import SampleClip
 from receiver.odometry.robot import INTEGRATIONS

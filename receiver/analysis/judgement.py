@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+
 from receiver.analysis.mistakes import profile_changes, verdict
 from receiver.analysis.refine import Fit
 from receiver.analysis.scoring import Ranked

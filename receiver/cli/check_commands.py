@@ -22,21 +22,21 @@ from receiver.analysis.sample_clip import clip_from_columns, last_seconds
 from receiver.analysis.wording import (
     CHECK_MARK,
     TOP_HYPOTHESES,
+    after_fit,
     change_lines,
     clip_line,
     confidence_words,
-    after_fit,
     explanation_id,
     guided_outcome,
     integration_words,
     small,
 )
-from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, profile_sources, warn
+from receiver.cli.common import add_set_option, edit_profiles, load_profiles, profile_sources, warn
 from receiver.errors import UsageError
 from receiver.formats.profile_writer import write_profile_file
 from receiver.formats.recording import read_recording
 from receiver.odometry.columns import Columns
-from receiver.odometry.robot import Profile, missing_profile_hint
+from receiver.odometry.robot import Profile, counts_per_message, missing_profile_hint
 
 
 def _robots(args: argparse.Namespace, one: bool) -> list[tuple[str, Columns, Profile]]:

@@ -34,11 +34,6 @@ def profile_sources(paths: Sequence[str] | None) -> dict[str, str]:
     return {load_profile(path).name: path for path in paths or ()}
 
 
-def counts_per_message(profiles: dict[str, Profile]) -> dict[str, int]:
-    """How many encoder counts each profiled robot's messages carry: what the recording reader checks."""
-    return {name: len(profile.wheels) for name, profile in profiles.items()}
-
-
 def add_set_option(parser: argparse.ArgumentParser) -> None:
     """The repeatable ``--set KEY=VALUE`` option (read by ``edit_profiles``)."""
     parser.add_argument(

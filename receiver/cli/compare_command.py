@@ -14,11 +14,12 @@ import math
 from pathlib import Path
 
 from receiver.analysis.compare import GROWTH_MINIMUMS, RunRow, profile_differences, run_row
-from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, warn
+from receiver.cli.common import add_set_option, edit_profiles, load_profiles, warn
 from receiver.cli.offline_commands import ProgressLine
 from receiver.errors import UsageError
 from receiver.formats.recording import read_recording
 from receiver.odometry.profile_edit import profile_values, show_value
+from receiver.odometry.robot import counts_per_message
 
 _NONE = "-"
 

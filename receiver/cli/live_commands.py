@@ -14,11 +14,11 @@ import threading
 import time
 from pathlib import Path
 
-from receiver.cli.common import counts_per_message, load_profiles, profile_sources, say, warn
+from receiver.cli.common import load_profiles, profile_sources, say, warn
 from receiver.errors import PodwatchError, UsageError
 from receiver.formats.protocol import MQTT_PREFIX as DEFAULT_PREFIX
 from receiver.live.transports.udp import DEFAULT_UDP_HOST, DEFAULT_UDP_PORT
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, counts_per_message
 from receiver.sim.motion_paths import PATHS
 
 # The receiver (asyncio, websockets, aiomqtt) and the dashboard (Dash,
@@ -113,7 +113,6 @@ class _PageServer:
 
     def _start(self, station):
         from dashboard.server import start_dashboard
-
         from dashboard.settings import DEFAULT_HOST, DEFAULT_PORT
         from receiver.live.serve import parse_host_port
 

@@ -15,7 +15,7 @@ from itertools import chain
 
 import numpy as np
 
-from receiver.cli.common import add_set_option, counts_per_message, edit_profiles, load_profiles, warn
+from receiver.cli.common import add_set_option, edit_profiles, load_profiles, warn
 from receiver.errors import UsageError
 from receiver.formats import block_decoder, csv_writer
 from receiver.formats.profile_toml import load_profile
@@ -24,7 +24,7 @@ from receiver.formats.recording_writer import RecordingWriter
 from receiver.odometry.faults import FAULT_SYNTAX, parse_faults
 from receiver.odometry.integrate import METHODS, wrap_angle
 from receiver.odometry.recompute import Result, Tracker
-from receiver.odometry.robot import Profile, missing_profile_hint
+from receiver.odometry.robot import Profile, counts_per_message, missing_profile_hint
 from receiver.sim.motion_paths import PATHS
 from receiver.sim.simulate import simulate
 

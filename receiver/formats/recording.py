@@ -28,7 +28,7 @@ from receiver.formats import block_decoder
 from receiver.formats.profile_toml import profile_from_table, profile_to_table
 from receiver.formats.protocol import Sample
 from receiver.odometry.columns import Columns, concat_columns
-from receiver.odometry.robot import Profile
+from receiver.odometry.robot import Profile, counts_per_message
 
 RECORDING_VERSION = 1
 # Blocks of a few MB: a block's decoded objects then fit in memory the small-object
@@ -253,7 +253,7 @@ class RecordingStream:
         header = self._lines.header
         self.created = header[0] if header else None
         self.profiles: dict[str, Profile] = header[1] if header else {}
-        lengths = {name: len(p.wheels) for name, p in self.profiles.items()}
+        lengths = counts_per_message(self.profiles)
         lengths.update(ticks_length or {})
         self._tally = block_decoder.Tally(lengths, self._lines.first_line_no)
         self.warnings: list[str] = []

@@ -142,3 +142,8 @@ def missing_profile_hint(robot: str, given: Iterable[str]) -> str:
         f"the profiles given are named {', '.join(names)}; the messages come from {robot}: "
         f'set name = "{robot}" in the right one, or send its name'
     )
+
+
+def counts_per_message(profiles: dict[str, Profile]) -> dict[str, int]:
+    """How many encoder counts each profiled robot's messages carry: what a reader checks them against."""
+    return {name: len(profile.wheels) for name, profile in profiles.items()}

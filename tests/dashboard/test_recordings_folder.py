@@ -254,3 +254,12 @@ def test_inflating_keeps_each_piece_bounded():
     pieces = list(_Inflate(io.BytesIO(_bomb(bytes(3 * MIB), 2)), MIB))
     assert sum(map(len, pieces)) == 6 * MIB and max(map(len, pieces)) <= MIB
     assert zlib.crc32(b"".join(pieces)) == zlib.crc32(bytes(6 * MIB))
+
+
+def test_a_failed_read_is_one_line_whatever_failed():
+    from dashboard.recordings_folder import why_unreadable
+    from receiver.errors import RecordingError
+
+    assert why_unreadable(RecordingError("run.jsonl: empty recording")) == "run.jsonl: empty recording"
+    assert why_unreadable(PermissionError(13, "Permission denied")) == "Permission denied"
+    assert why_unreadable(MemoryError()) == "not enough memory"

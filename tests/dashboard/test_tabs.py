@@ -100,3 +100,12 @@ def test_a_request_without_a_view_id_gets_a_view_that_is_not_remembered():
     station = Station(live=live)
     assert station.tab(None).source is live
     assert station.tab(None) is not station.tab(None)
+
+
+def test_remember_keeps_each_tabs_newest_and_forgets_the_oldest_tabs():
+    from dashboard.tabs import remember
+
+    by_tab: dict = {}
+    for view_id, value in [("a", 1), ("b", 2), ("a", 3), ("c", 4)]:
+        remember(by_tab, view_id, value, most=2)
+    assert by_tab == {"a": 3, "c": 4}  # "b" was the oldest once "a" came again
